@@ -45,6 +45,7 @@ INSTALLED_APPS = [
     "facility.instruments",
     "facility.bookings",
     "facility.logbook",
+    "facility.demo",
     "api",
 ]
 

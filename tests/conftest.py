@@ -65,6 +65,12 @@ def _media_in_tmp(settings, tmp_path):
     settings.MEDIA_ROOT = tmp_path / "media"
 
 
+@pytest.fixture(autouse=True)
+def _fast_passwords(settings):
+    # The real hasher is slow by design; tests need no protection against brute force.
+    settings.PASSWORD_HASHERS = ["django.contrib.auth.hashers.MD5PasswordHasher"]
+
+
 @dataclass
 class Facility:
     """The invented facility every test can start from."""
