@@ -8,6 +8,7 @@ from __future__ import annotations
 
 from pathlib import Path
 
+from celery.schedules import crontab
 from django.core.exceptions import ImproperlyConfigured
 
 from facility.config import Config
@@ -45,6 +46,8 @@ INSTALLED_APPS = [
     "facility.instruments",
     "facility.bookings",
     "facility.logbook",
+    "facility.billing",
+    "facility.upkeep",
     "facility.demo",
     "api",
 ]
@@ -164,7 +167,21 @@ CELERY_WORKER_PREFETCH_MULTIPLIER = 1
 CELERY_TASK_SOFT_TIME_LIMIT = env.int("CELERY_TASK_SOFT_TIME_LIMIT", 120, minimum=1)
 CELERY_TASK_TIME_LIMIT = env.int("CELERY_TASK_TIME_LIMIT", 180, minimum=1)
 CELERY_TIMEZONE = TIME_ZONE
-CELERY_BEAT_SCHEDULE: dict = {}
+# Periodic jobs (run by `celery -A facility beat`); each task stays thin and calls a service.
+CELERY_BEAT_SCHEDULE: dict = {
+    "requeue-stale-micrographs": {
+        "task": "facility.logbook.tasks.requeue_stale_micrographs",
+        "schedule": 600.0,
+    },
+    "draft-previous-month": {
+        "task": "facility.billing.tasks.draft_previous_month",
+        "schedule": crontab(minute=0, hour=2, day_of_month=1),
+    },
+    "check-upkeep-limits": {
+        "task": "facility.upkeep.tasks.check_limits",
+        "schedule": crontab(minute=0, hour=6),
+    },
+}
 
 # --- REST API ------------------------------------------------------------------------------
 REST_FRAMEWORK = {
