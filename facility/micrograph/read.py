@@ -15,13 +15,13 @@ import struct
 import warnings
 from collections.abc import Iterator
 from contextlib import contextmanager
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from enum import Enum
 from typing import IO, Any, BinaryIO
 
 import numpy as np
 import tifffile
-from PIL import Image
+from PIL import Image, UnidentifiedImageError
 
 __all__ = [
     "DEFAULT_MAX_PIXELS",
@@ -157,7 +157,7 @@ def _quiet_tifffile() -> Iterator[None]:
 def _tiff_header(tif: tifffile.TiffFile) -> ImageHeader:
     pages = len(tif.pages)
     if pages == 0:
-        raise ImageReadError("TIFF has no image pages")
+        raise ImageReadError("TIFF has no readable image page (damaged or truncated header)")
     page = tif.pages.first
     width, height = int(page.imagewidth), int(page.imagelength)
     if width <= 0 or height <= 0:
@@ -264,6 +264,8 @@ def _pillow_header(fh: IO[bytes], fmt: str) -> tuple[ImageHeader, Image.Image]:
         img = Image.open(fh, formats=["PNG"] if fmt == "png" else ["JPEG"])
     except Image.DecompressionBombError as exc:
         raise ImageReadError(f"image is too large to read safely: {exc}") from exc
+    except UnidentifiedImageError as exc:  # its message carries a stream repr, useless to a person
+        raise ImageReadError(f"damaged {fmt.upper()} header: not decodable") from exc
     except (OSError, SyntaxError, ValueError, struct.error) as exc:
         raise ImageReadError(f"damaged {fmt.upper()} header: {exc}") from exc
     width, height = img.size
@@ -303,6 +305,10 @@ def _read_pillow(fh: IO[bytes], fmt: str, max_pixels: int | None, decode: bool) 
             texts.insert(0, _text(description))
             tags.setdefault("ImageDescription", _text(description))
         arr = _pillow_pixels(img)
+    if header.bit_depth > 8 and arr.dtype == np.uint8:
+        # Pillow decodes 16-bit colour PNGs to 8 bits per channel; describe the data we hold.
+        tags["declared_bit_depth"] = header.bit_depth
+        header = replace(header, bit_depth=8, dtype="uint8")
     return LoadedImage(_to_gray(arr), header, tags, texts)
 
 

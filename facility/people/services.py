@@ -47,7 +47,7 @@ def notify(
                 settings.DEFAULT_FROM_EMAIL,
                 [user.email],
             )
-        except Exception:  # noqa: BLE001 - any transport error
+        except Exception:  # any transport error
             log.exception("could not e-mail notification %s to %s", note.pk, user.pk)
     return note
 
