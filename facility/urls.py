@@ -1,9 +1,61 @@
+"""Top-level routes: the admin, the API, the pages, and the micrograph downloads."""
+
 from __future__ import annotations
 
 from django.contrib import admin
+from django.contrib.auth import views as auth_views
 from django.urls import include, path
+
+from facility.bookings import views as bookings
+from facility.logbook.views import home, instruments, session, station
+from facility.people import views as people
+
+pages = [
+    path("", home.home, name="home"),
+    path(
+        "sign-in/",
+        auth_views.LoginView.as_view(redirect_authenticated_user=True),
+        name="login",
+    ),
+    path("sign-out/", auth_views.LogoutView.as_view(), name="logout"),
+    path("messages/", people.notification_list, name="notification-list"),
+    # Instruments, their week calendars and the check-in station at each microscope.
+    path("instruments/", instruments.instrument_list, name="instrument-list"),
+    path("instruments/<slug:code>/", instruments.instrument_detail, name="instrument-detail"),
+    path("instruments/<slug:code>/book/", bookings.new_booking, name="booking-new"),
+    path("instruments/<slug:code>/station/", station.station, name="station"),
+    path("instruments/<slug:code>/check-in/", station.check_in, name="check-in"),
+    # Bookings.
+    path("bookings/", bookings.booking_list, name="booking-list"),
+    path("bookings/<int:pk>/", bookings.booking_detail, name="booking-detail"),
+    path("bookings/<int:pk>/cancel/", bookings.cancel_booking, name="booking-cancel"),
+    path("bookings/<int:pk>/confirm/", bookings.confirm_booking, name="booking-confirm"),
+    path("bookings/<int:pk>/no-show/", bookings.no_show, name="booking-no-show"),
+    # Private calendar feeds: the token in the URL is the only credential (no sign-in).
+    path("calendar/", bookings.calendar_feeds, name="calendar-feeds"),
+    path("calendar/<str:token>/bookings.ics", bookings.personal_feed, name="feed-personal"),
+    path(
+        "calendar/<str:token>/instruments/<slug:code>.ics",
+        bookings.instrument_feed,
+        name="feed-instrument",
+    ),
+    # The session page (flag notifications link to /sessions/<pk>/) and its forms.
+    path("sessions/<int:pk>/", session.session_detail, name="session-detail"),
+    path("sessions/<int:pk>/live/", session.session_live, name="session-live"),
+    path("sessions/<int:pk>/check-out/", station.check_out, name="check-out"),
+    path("sessions/<int:pk>/specimen/", session.session_specimen, name="session-specimen"),
+    path("sessions/<int:pk>/coating/", session.session_coating, name="session-coating"),
+    path("sessions/<int:pk>/settings/", session.session_settings, name="session-settings"),
+    path("sessions/<int:pk>/conditions/", session.session_conditions, name="session-conditions"),
+    path("sessions/<int:pk>/fault/", session.session_fault, name="session-fault"),
+    path("sessions/<int:pk>/images/", session.session_upload, name="session-upload"),
+    path("flags/<int:pk>/dismiss/", session.flag_dismiss, name="flag-dismiss"),
+    # Billing, upkeep, the finder and API tokens add their page routes here when they land.
+]
 
 urlpatterns = [
     path("admin/", admin.site.urls),
     path("api/v1/", include("api.urls")),
+    path("", include("facility.logbook.urls")),
+    *pages,
 ]

@@ -304,6 +304,8 @@ class Micrograph(models.Model):
         max_length=10, choices=AnalysisState.choices, default=AnalysisState.PENDING
     )
     failure_reason = models.TextField(blank=True)
+    # How often analysis was started; a file that keeps killing workers ends as failed, not pending.
+    analysis_attempts = models.PositiveSmallIntegerField(default=0)
     uploaded_by = models.ForeignKey(
         settings.AUTH_USER_MODEL, null=True, blank=True, on_delete=models.SET_NULL, related_name="+"
     )

@@ -16,6 +16,7 @@ from facility.bookings.models import LIVE_STATES, Booking, BookingState, Purpose
 from facility.bookings.queries import overlapping
 from facility.errors import Closed, Conflict, Invalid, NotAllowed
 from facility.instruments.models import Instrument, VacuumMode
+from facility.logbook import flags
 from facility.logbook.models import (
     Coating,
     CoatingMaterial,
@@ -274,6 +275,7 @@ def record_specimen(
             specimen = Specimen.objects.create(owner=session.operator, group_id=group_id, **fields)
         session.specimen = specimen
         session.save(update_fields=["specimen"])
+        flags.recompute(session=session)
         return specimen
 
 
@@ -312,6 +314,7 @@ def set_coating(
         )
         session.coating = coating
         session.save(update_fields=["coating"])
+        flags.recompute(session=session)
         return coating
 
 
@@ -357,7 +360,9 @@ def add_conditions(
     cleaned = clean_condition_values(values)
     with transaction.atomic():
         _may_log(session, by)
-        return Conditions.objects.create(session=session, source=source, **cleaned)
+        conditions = Conditions.objects.create(session=session, source=source, **cleaned)
+        flags.recompute(session=session)
+        return conditions
 
 
 def update_conditions(*, conditions: Conditions, by: AbstractBaseUser, **values: Any) -> Conditions:
@@ -367,6 +372,7 @@ def update_conditions(*, conditions: Conditions, by: AbstractBaseUser, **values:
         for name, value in cleaned.items():
             setattr(conditions, name, value)
         conditions.save()
+        flags.recompute(session=conditions.session)
         return conditions
 
 
@@ -392,4 +398,5 @@ def update_session(
             changed.append("fault_report")
         if changed:
             session.save(update_fields=changed)
+            flags.recompute(session=session)
         return session

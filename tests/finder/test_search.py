@@ -276,3 +276,27 @@ def test_bad_criteria_are_refused(raw, field):
 def test_empty_criteria_are_refused():
     with pytest.raises(Invalid, match="at least one attribute"):
         make_criteria()
+
+
+def test_charging_report_counts_by_cell(facility, logbook, settings):
+    from facility.finder.charging_report import charging_table, heat_map_svg
+    from facility.logbook.models import Assessment
+    from facility.micrograph.assess import ANALYSIS_VERSION
+
+    threshold = settings.ANALYSIS_THRESHOLDS["charging_score"]
+    for n, session in logbook.items():
+        micrograph = session.micrographs.get()
+        score = threshold + 0.2 if n in (1, 2) else threshold / 4
+        Assessment.objects.create(
+            micrograph=micrograph, analysis_version=ANALYSIS_VERSION, charging_score=score
+        )
+    cells = {(c.conductivity, c.coated, c.vacuum_mode, c.band): c for c in charging_table()}
+    # #1 (15 kV) and #2 (10 kV): insulating, uncoated, high vacuum, band 10–20 kV, both charging.
+    both = cells[("insulating", "uncoated", "high", "10–20 kV")]
+    assert (both.sessions, both.charging, both.rate) == (2, 2, 1.0)
+    # #7 (1 kV) in the same specimen class but below 2 kV: no charging.
+    low = cells[("insulating", "uncoated", "high", "< 2 kV")]
+    assert (low.sessions, low.charging) == (1, 0)
+    assert sum(c.sessions for c in cells.values()) == 7
+    svg = heat_map_svg(list(cells.values()))
+    assert svg.lstrip().startswith("<?xml") and "<svg" in svg

@@ -81,7 +81,9 @@ def assess_file(
         instrument_kind=instrument_kind,
     )
     try:
-        result = assess(image.data, pixel_size_nm=meta.pixel_size_nm).to_dict()
+        # Integer files name their top grey level (clipping, saturation); floats have none.
+        top = image.header.bit_depth if image.header.dtype.startswith("uint") else None
+        result = assess(image.data, pixel_size_nm=meta.pixel_size_nm, bit_depth=top).to_dict()
     except Exception as exc:  # one bad image must not stop a batch; the reason is reported
         return {"file": path, "error": f"analysis failed: {type(exc).__name__}: {exc}"}
     record: dict[str, Any] = {
@@ -160,7 +162,8 @@ class _RawStream:
         self._wrapper = wrapper
 
     def write(self, text: str) -> None:
-        self._wrapper.write(text, ending="")
+        # Unstyled: on a terminal Django would paint every stderr write in its error colour.
+        self._wrapper.write(text, style_func=lambda message: message, ending="")
 
     def flush(self) -> None:
         self._wrapper.flush()
