@@ -6,6 +6,7 @@ best candidates come back to Python for the summary and the explanations.
 
 from __future__ import annotations
 
+import math
 import statistics
 from collections import Counter
 from dataclasses import dataclass, field
@@ -25,7 +26,7 @@ from django.db.models import (
     Value,
     When,
 )
-from django.db.models.functions import Abs, Greatest, Log
+from django.db.models.functions import Abs, Greatest, Ln
 
 from facility.finder import text as text_search
 from facility.finder.criteria import WEIGHTS, Criteria
@@ -41,8 +42,9 @@ from facility.people.queries import group_ids_of, is_staff
 
 # Outcome codes that make a session a "failure" for the summary.
 FAILURE_CODES = (FlagCode.CHARGING, FlagCode.LOW_RESOLUTION, FlagCode.ASTIGMATISM)
-SUMMARY_POOL = 400  # best candidates the summary is drawn from
+SUMMARY_POOL = 200  # best candidates the summary is drawn from
 SIMILAR_SHARE = 0.5  # a candidate is "similar" at half the best possible score or more
+TEXT_MATCHES = 500  # sessions whose text matches, scored for relevance
 
 
 @dataclass
@@ -140,7 +142,10 @@ def _score(criteria: Criteria):
             parts.append(_match("coating__material", c.coating, WEIGHTS["coating"]))
     if c.feature_size_nm:
         # Closeness on a log scale: full weight for the same size, none a decade away or more.
-        decades = Abs(Log(10, F("specimen__feature_size_nm") / Value(float(c.feature_size_nm))))
+        # Ln on floats: Django's Log casts to numeric on PostgreSQL, which is slow per row.
+        decades = Abs(Ln(F("specimen__feature_size_nm") / Value(float(c.feature_size_nm)))) / Value(
+            math.log(10)
+        )
         closeness = Greatest(Value(0.0), Value(1.0) - decades)
         parts.append(
             Case(
@@ -152,41 +157,71 @@ def _score(criteria: Criteria):
                 output_field=FloatField(),
             )
         )
-    if c.text:
-        parts.append(text_search.relevance(c.text) * Value(WEIGHTS["text"]))
+    if not parts:
+        return Value(0.0, output_field=FloatField())
     total = parts[0]
     for part in parts[1:]:
         total = total + part
     return ExpressionWrapper(total, output_field=FloatField())
 
 
-def _prefilter(criteria: Criteria) -> Q:
-    """Keep only sessions that match something, so the scoring runs on candidates only."""
-    q = Q(pk__in=[])
-    if criteria.material_class:
-        q |= Q(specimen__material_class=criteria.material_class)
-    if criteria.conductivity:
-        q |= Q(specimen__conductivity=criteria.conductivity)
-    if criteria.form:
-        q |= Q(specimen__form=criteria.form)
-    if criteria.text:
-        q |= text_search.text_filter(criteria.text)
-    if q == Q(pk__in=[]):
-        return Q()
+def _prefilter(criteria: Criteria) -> Q | None:
+    """Sessions that match at least one strong attribute; None when no attribute is given."""
+    q = None
+    for name, field_name in (
+        ("material_class", "specimen__material_class"),
+        ("conductivity", "specimen__conductivity"),
+        ("form", "specimen__form"),
+    ):
+        value = getattr(criteria, name)
+        if value:
+            term = Q(**{field_name: value})
+            q = term if q is None else q | term
     return q
 
 
+def _ranked_ids(user: AbstractBaseUser, criteria: Criteria, limit: int) -> list[tuple[int, float]]:
+    """(session id, score) of the best `limit` sessions, scored in two cheap queries.
+
+    The attribute score is computed in the database over the sessions that share an attribute;
+    text relevance only over the (index-found) sessions whose text matches. A session's total
+    is the sum, so the overall best are among the best by attributes plus the text matches.
+    """
+    pool = _pool(user)
+    attribute_score = _score(criteria)
+    scores: dict[int, float] = {}
+    attr_filter = _prefilter(criteria)
+    if attr_filter is not None or not criteria.text:
+        qs = pool if attr_filter is None else pool.filter(attr_filter)
+        for pk, score in (
+            qs.annotate(score=attribute_score)
+            .order_by("-score", "-started_at")
+            .values_list("pk", "score")[:limit]
+        ):
+            scores[pk] = float(score)
+    if criteria.text:
+        relevance = (
+            pool.filter(text_search.text_filter(criteria.text))
+            .annotate(relevance=text_search.relevance(criteria.text), score=attribute_score)
+            .order_by("-relevance")
+            .values_list("pk", "relevance", "score")[:TEXT_MATCHES]
+        )
+        for pk, rel, score in relevance:
+            scores[pk] = float(score) + WEIGHTS["text"] * min(1.0, float(rel or 0))
+    ranked = [(pk, sc) for pk, sc in scores.items() if sc > 0]
+    return ranked
+
+
 def candidates(user: AbstractBaseUser, criteria: Criteria, limit: int) -> list[InstrumentSession]:
+    ranked = _ranked_ids(user, criteria, limit)
+    score_of = dict(ranked)
     failure = Flag.objects.filter(
         session=OuterRef("pk"), code__in=FAILURE_CODES, dismissed_at__isnull=True
     )
     analysed = Micrograph.objects.filter(session=OuterRef("pk"), state=AnalysisState.DONE)
-    qs = (
-        _pool(user)
-        .filter(_prefilter(criteria))
-        .annotate(score=_score(criteria), failed=Exists(failure), analysed=Exists(analysed))
-        .filter(score__gt=0)
-        .order_by("-score", "-started_at")
+    sessions = list(
+        InstrumentSession.objects.filter(pk__in=list(score_of))
+        .annotate(failed=Exists(failure), analysed=Exists(analysed))
         .select_related("specimen", "coating", "instrument", "operator", "account__group")
         .prefetch_related(
             Prefetch("conditions", queryset=Conditions.objects.order_by("id")),
@@ -197,7 +232,10 @@ def candidates(user: AbstractBaseUser, criteria: Criteria, limit: int) -> list[I
             ),
         )
     )
-    return list(qs[:limit])
+    for session in sessions:
+        session.score = score_of[session.pk]
+    sessions.sort(key=lambda s: (-round(s.score, 9), -s.started_at.timestamp()))
+    return sessions[:limit]
 
 
 def _outcome(session: InstrumentSession) -> str:
