@@ -1,9 +1,46 @@
+"""URLs of the REST API, mounted at /api/v1/ (namespace "api").
+
+Each resource registers its viewset here; billing and upkeep endpoints slot in the same way when
+those apps land. Anything else under /api/v1/ answers a JSON 404, never an HTML page.
+"""
+
 from __future__ import annotations
 
-from django.urls import path
+from django.urls import path, re_path
+from django.views.decorators.cache import cache_page
 from drf_spectacular.views import SpectacularAPIView, SpectacularSwaggerView
+from rest_framework.routers import SimpleRouter
+
+from api.views import (
+    bookings,
+    flags,
+    instruments,
+    micrographs,
+    people,
+    sessions,
+    specimens,
+    tokens,
+)
+from api.views.fallback import not_found
+
+app_name = "api"
+SCHEMA_CACHE_SECONDS = 600
+
+router = SimpleRouter()
+router.register("instruments", instruments.InstrumentViewSet, basename="instrument")
+router.register("bookings", bookings.BookingViewSet, basename="booking")
+router.register("sessions", sessions.SessionViewSet, basename="session")
+router.register("micrographs", micrographs.MicrographViewSet, basename="micrograph")
+router.register("flags", flags.FlagViewSet, basename="flag")
+router.register("specimens", specimens.SpecimenViewSet, basename="specimen")
+router.register("accounts", people.AccountViewSet, basename="account")
+router.register("tokens", tokens.TokenViewSet, basename="token")
 
 urlpatterns = [
-    path("schema/", SpectacularAPIView.as_view(), name="schema"),
-    path("docs/", SpectacularSwaggerView.as_view(url_name="schema"), name="api-docs"),
+    # The schema changes only with a deploy; generating it takes most of a second.
+    path("schema/", cache_page(SCHEMA_CACHE_SECONDS)(SpectacularAPIView.as_view()), name="schema"),
+    path("docs/", SpectacularSwaggerView.as_view(url_name="api:schema"), name="api-docs"),
+    path("me/", people.MeView.as_view(), name="me"),
+    *router.urls,
+    re_path(r"^.*$", not_found, name="not-found"),
 ]

@@ -48,6 +48,7 @@ INSTALLED_APPS = [
     "facility.logbook",
     "facility.billing",
     "facility.upkeep",
+    "facility.finder",
     "facility.demo",
     "api",
 ]
@@ -185,23 +186,91 @@ CELERY_BEAT_SCHEDULE: dict = {
 
 # --- REST API ------------------------------------------------------------------------------
 REST_FRAMEWORK = {
+    # Token first: its WWW-Authenticate header makes a request without credentials a 401.
     "DEFAULT_AUTHENTICATION_CLASSES": [
+        "api.authentication.TokenAuthentication",
         "rest_framework.authentication.SessionAuthentication",
     ],
-    "DEFAULT_PERMISSION_CLASSES": ["rest_framework.permissions.IsAuthenticated"],
-    "DEFAULT_SCHEMA_CLASS": "drf_spectacular.openapi.AutoSchema",
+    "DEFAULT_PERMISSION_CLASSES": ["api.permissions.HasScope"],
+    "DEFAULT_PARSER_CLASSES": ["rest_framework.parsers.JSONParser"],
+    "DEFAULT_RENDERER_CLASSES": ["rest_framework.renderers.JSONRenderer"],
+    "DEFAULT_PAGINATION_CLASS": "api.pagination.Cursor",
+    "DEFAULT_SCHEMA_CLASS": "api.schema.ApiAutoSchema",
+    "EXCEPTION_HANDLER": "api.errors.exception_handler",
+    "DEFAULT_METADATA_CLASS": "api.metadata.PointToSchema",
+    "DEFAULT_THROTTLE_CLASSES": [],
+    # Per token (or per person when signed in); the cache is the default one, so with several
+    # web processes give Django a shared cache (Redis) for the limits to hold across them.
+    "DEFAULT_THROTTLE_RATES": {
+        "token_creation": env.str("API_TOKEN_CREATION_RATE", "20/hour"),
+        "uploads": env.str("API_UPLOAD_RATE", "3600/hour"),
+    },
+    "UNAUTHENTICATED_USER": "django.contrib.auth.models.AnonymousUser",
 }
 SPECTACULAR_SETTINGS = {
     "TITLE": "Beamledger API",
-    "DESCRIPTION": "Bookings, sessions, images, flags and usage of an electron-microscopy facility.",
+    "DESCRIPTION": (
+        "Bookings, sessions, images, flags and usage of an electron-microscopy facility. "
+        "Authenticate with `Authorization: Bearer <token>` (make tokens on your token page) or "
+        "with the pages' login session. Every error has the shape "
+        '`{"error": {"code", "message", "fields"}}`.'
+    ),
     "VERSION": "1",
     "SERVE_INCLUDE_SCHEMA": False,
+    # The schema is no secret: scripts' authors read it before they hold a token.
+    "SERVE_PERMISSIONS": ["rest_framework.permissions.AllowAny"],
+    "SERVE_AUTHENTICATION": [],
+    "COMPONENT_SPLIT_REQUEST": True,
+    "SCHEMA_PATH_PREFIX": "/api/v1",
+    "ENUM_NAME_OVERRIDES": {
+        "InstrumentKindEnum": "facility.instruments.models.InstrumentKind",
+        "AccountKindEnum": "facility.people.models.AccountKind",
+        "TokenKindEnum": "api.models.TokenKind",
+        "BookingStateEnum": "facility.bookings.models.BookingState",
+        "AnalysisStateEnum": "facility.logbook.models.AnalysisState",
+        "InstrumentStateEnum": "api.instrument_state.STATES",
+        "VacuumModeEnum": "facility.instruments.models.VacuumMode",
+    },
 }
 
 # --- Facility rules ------------------------------------------------------------------------
 FACILITY_NAME = env.str("FACILITY_NAME", "Beamledger facility")
 UPLOAD_MAX_PIXELS = env.int("UPLOAD_MAX_PIXELS", 400_000_000, minimum=1)
 UPLOAD_MAX_BYTES = env.int("UPLOAD_MAX_BYTES", 500 * 1024 * 1024, minimum=1)
+
+# --- Image analysis and session flags ------------------------------------------------------
+# Thresholds of the image flags (facility.micrograph.assess.AssessSettings field names).
+ANALYSIS_THRESHOLDS = {
+    "low_resolution_px": env.float("FLAG_LOW_RESOLUTION_PX", 4.0, minimum=0.5),
+    "astigmatism_ratio": env.float("FLAG_ASTIGMATISM_RATIO", 1.5, minimum=1.0),
+    "charging_score": env.float("FLAG_CHARGING_SCORE", 0.5, minimum=0.0),
+}
+# A coating thinner than this does not count against charging (common practice, no source).
+CHARGING_MIN_COATING_NM = env.float("CHARGING_MIN_COATING_NM", 2.0, minimum=0.0)
+# Second crossover energy E2 (keV) assumed by material class when the specimen gives none.
+# Polymers ~1.5 and oxides/glasses ~3 (DOMAIN.md, after Joy & Joy, Micron 27 (1996) 247);
+# semiconductors 2.6 (GaAs in the same table); biological and composite taken as polymer-like
+# (from memory). Metals conduct and are not checked.
+DEFAULT_E2_KEV = {
+    "polymer": env.float("DEFAULT_E2_POLYMER_KEV", 1.5, minimum=0.1),
+    "biological": env.float("DEFAULT_E2_BIOLOGICAL_KEV", 1.5, minimum=0.1),
+    "composite": env.float("DEFAULT_E2_COMPOSITE_KEV", 1.5, minimum=0.1),
+    "ceramic": env.float("DEFAULT_E2_CERAMIC_KEV", 3.0, minimum=0.1),
+    "mineral": env.float("DEFAULT_E2_MINERAL_KEV", 3.0, minimum=0.1),
+    "semiconductor": env.float("DEFAULT_E2_SEMICONDUCTOR_KEV", 2.6, minimum=0.1),
+}
+# Warn when the coating is thicker than this share of the feature size of interest: a ~10 nm
+# sputtered layer hides features of about that size (trade).
+COATING_FEATURE_RATIO = env.float("COATING_FEATURE_RATIO", 0.2, minimum=0.0)
+# Logged and embedded numbers that differ by more than this share are a mismatch.
+METADATA_MISMATCH_TOLERANCE = env.float("METADATA_MISMATCH_TOLERANCE", 0.05, minimum=0.0)
+# Micrographs still pending after this long are queued again (a lost message).
+ANALYSIS_STALE_MINUTES = env.int("ANALYSIS_STALE_MINUTES", 15, minimum=1)
+ANALYSIS_MAX_ATTEMPTS = env.int("ANALYSIS_MAX_ATTEMPTS", 5, minimum=1)
+
+# --- Upkeep --------------------------------------------------------------------------------
+# Alert staff when a counter is forecast to reach its limit within this many days.
+UPKEEP_FORECAST_ALERT_DAYS = env.int("UPKEEP_FORECAST_ALERT_DAYS", 30, minimum=0)
 
 LOGGING = {
     "version": 1,

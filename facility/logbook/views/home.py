@@ -24,6 +24,7 @@ from facility.people.queries import is_staff
 
 RECENT = dt.timedelta(days=30)
 ALERT_WINDOW = dt.timedelta(days=14)
+SEVERITY_ORDER = {Severity.PROBLEM: 0, Severity.WARNING: 1, Severity.INFO: 2}
 
 
 def local_day_bounds(now: dt.datetime) -> tuple[dt.datetime, dt.datetime]:
@@ -66,14 +67,15 @@ def _researcher(request: HttpRequest, now: dt.datetime) -> dict:
         .select_related("instrument")
         .first()
     )
-    recent_flags = list(
+    recent_flags = sorted(
         Flag.objects.filter(
             session__operator=user,
             dismissed_at__isnull=True,
             session__started_at__gte=now - RECENT,
         )
         .select_related("session__instrument")
-        .order_by("-computed_at")[:6]
+        .order_by("-computed_at")[:6],
+        key=lambda flag: SEVERITY_ORDER.get(flag.severity, 3),
     )
     first = month_start(now)
     month = InstrumentSession.objects.filter(

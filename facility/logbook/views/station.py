@@ -68,9 +68,9 @@ def station(request: HttpRequest, code: str) -> HttpResponse:
 def check_in(request: HttpRequest, code: str) -> HttpResponse:
     instrument = get_object_or_404(Instrument, code=code, is_active=True)
     booking = None
-    if request.POST.get("booking"):
+    if request.POST.get("booking", "").isdigit():
         booking = get_object_or_404(
-            Booking.objects.filter(user=request.user), pk=request.POST["booking"]
+            Booking.objects.filter(user=request.user), pk=int(request.POST["booking"])
         )
     form = CheckInForm(request.POST, user=request.user)
     form.is_valid()  # a walk-up without an account is refused by the service, in words

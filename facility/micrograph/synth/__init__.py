@@ -6,7 +6,7 @@ Pipeline (each stage a physical step of image formation in a scanning microscope
    (:mod:`.scenes`: ``particles``, ``fibres``, ``porous``, ``edges``), drawn supersampled;
 2. probe — convolution with an elliptical Gaussian probe (σ_major, σ_minor, any angle), then point
    sampling at the pixel centres;
-3. charging — artefacts applied to the expected signal (:mod:`.charging`, another helper's module);
+3. charging — artefacts applied to the expected signal (:mod:`.charging`);
 4. dose — Poisson counting noise, ``dose`` = mean detected electrons per pixel;
 5. detector — offset and gain, then quantisation to 8 or 16 bits with clipping.
 
@@ -17,15 +17,15 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass, field
-from typing import TYPE_CHECKING, Any
+from typing import Any
 
 import numpy as np
+from scipy import fft
 
+from ..physics import EDGE_20_80_PER_SIGMA
+from .charging import ChargingSpec, apply_charging
 from .optics import gaussian_blur, probe_covariance
 from .scenes import SCENES
-
-if TYPE_CHECKING:
-    from .charging import ChargingSpec
 
 # Samples per output pixel when drawing the scene: edges are then sharp at the output sampling
 # and the probe acts on an (almost) continuous specimen before point sampling.
@@ -33,8 +33,6 @@ SUPERSAMPLE = 2
 # The 99.9th percentile of the expected signal lands this far above the offset (fraction of
 # full scale) at gain 1 — a typical brightness/contrast setting that leaves head-room.
 NOMINAL_SPAN = 0.6
-# Gaussian edge rise 20–80 % in units of σ: Φ⁻¹(0.8) − Φ⁻¹(0.2).
-RISE_20_80 = 1.6832424671458286
 
 
 @dataclass
@@ -81,7 +79,11 @@ def make_micrograph(
     sig_minor = sigma_px / math.sqrt(astigmatism)
     pad = math.ceil(5.0 * sig_major) + 4
     ss = SUPERSAMPLE
-    big = ((ny + 2 * pad) * ss, (nx + 2 * pad) * ss)
+    # the working grid is padded up to FFT-friendly sizes; the crop is taken from its corner
+    big = (
+        fft.next_fast_len((ny + 2 * pad) * ss, True),
+        fft.next_fast_len((nx + 2 * pad) * ss, True),
+    )
     yield_map = SCENES[scene](big, float(ss), rng).astype(np.float32, copy=False)
     cov = probe_covariance(sig_major * ss, sig_minor * ss, angle_deg)
     blurred = gaussian_blur(yield_map, cov)
@@ -96,8 +98,6 @@ def make_micrograph(
     grey_per_electron = gain * NOMINAL_SPAN * full_scale / top
     full_scale_electrons = (1.0 - offset) * full_scale / grey_per_electron
     if charging is not None:
-        from .charging import apply_charging  # the charging helper's module; imported lazily
-
         expected = apply_charging(expected, charging, rng, full_scale_electrons)
         expected = np.maximum(expected, 0.0)
     counts = rng.poisson(expected)
@@ -115,7 +115,7 @@ def make_micrograph(
         "sigma_minor": float(sig_minor),
         "astigmatism": float(astigmatism),
         "angle_deg": float(angle_deg % 180.0),
-        "resolution_px": float(RISE_20_80 * sigma_px),
+        "resolution_px": float(EDGE_20_80_PER_SIGMA * sigma_px),
         "dose": float(dose),
         "bit_depth": bit_depth,
         "offset": float(offset),
@@ -129,4 +129,4 @@ def make_micrograph(
     return SynthImage(image=image, truth=truth)
 
 
-__all__ = ["SCENES", "SynthImage", "make_micrograph"]
+__all__ = ["SCENES", "ChargingSpec", "SynthImage", "make_micrograph"]

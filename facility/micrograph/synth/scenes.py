@@ -14,9 +14,8 @@ import math
 from collections.abc import Callable
 
 import numpy as np
-from scipy import ndimage
 
-from .fields import band_field, power_law_field, segment_distance
+from .fields import band_field, gaussian_smooth_pair, power_law_field, segment_distance
 
 
 def _loguniform(rng: np.random.Generator, lo: float, hi: float) -> float:
@@ -133,22 +132,22 @@ def porous(shape: tuple[int, int], px: float, rng: np.random.Generator) -> np.nd
 
     Models: pores as the low level set of a correlated random field (two size scales, 6–30 px and
     2–4× that), so they are irregular and interconnected; pores are dark (few secondary electrons
-    escape) with their walls fading into the dark floor; the matrix is rough (power-law texture)
-    and brightens towards the pore mouths (edge effect, 0.8–3 px).
+    escape) with their walls fading into the dark floor over 2–6 px; the matrix is rough
+    (power-law texture) and brightens towards the pore mouths (edge effect, 0.8–3 px). Both
+    fall-offs are the share of a Gaussian interaction volume that lies beyond the boundary.
     """
     scale = rng.uniform(6.0, 30.0) * px
     g = band_field(shape, rng, scale_px=scale)
     g += rng.uniform(0.3, 0.7) * band_field(shape, rng, scale_px=scale * rng.uniform(2.0, 4.0))
-    pores = g < np.quantile(
-        g[:: max(1, shape[0] // 256), :: max(1, shape[1] // 256)], rng.uniform(0.15, 0.45)
-    )
+    step = max(1, shape[0] // 256), max(1, shape[1] // 256)
+    pores = g < np.quantile(g[:: step[0], :: step[1]], rng.uniform(0.15, 0.45))
     tex = power_law_field(shape, rng, beta=rng.uniform(2.4, 3.4), corr_px=rng.uniform(10, 60) * px)
     out = 1.0 + rng.uniform(0.04, 0.12) * tex
-    d_out = ndimage.distance_transform_edt(~pores).astype(np.float32)
-    out += rng.uniform(0.3, 1.0) * np.exp(-d_out / (rng.uniform(0.8, 3.0) * px))
-    d_in = ndimage.distance_transform_edt(pores).astype(np.float32)
-    floor = rng.uniform(0.15, 0.4)
-    wall = floor + 0.35 * np.exp(-d_in / (rng.uniform(2.0, 6.0) * px))
+    # 2·(G ∗ mask) is 1 on a straight boundary and falls off like erfc away from it
+    rim_w, wall_w = rng.uniform(0.8, 3.0) * px, rng.uniform(2.0, 6.0) * px
+    near_pore, pore_blur = gaussian_smooth_pair(pores, rim_w, wall_w)
+    out += rng.uniform(0.3, 1.0) * np.minimum(2.0 * near_pore, 1.0)
+    wall = rng.uniform(0.15, 0.4) + 0.35 * np.minimum(2.0 * (1.0 - pore_blur), 1.0)
     return np.where(pores, wall, out).astype(np.float32)
 
 

@@ -1,0 +1,1 @@
+"""API views: parse input, call one service or query, shape the output."""

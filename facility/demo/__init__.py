@@ -1,0 +1,1 @@
+"""The invented demo facility and the `load_demo` command that loads it."""

@@ -1,0 +1,306 @@
+"""Charging artefacts (``synth/charging.py``) and the charging detector (``charging.py``).
+
+The accuracy tests run the detector on a fixed seeded set of synthetic micrographs made with
+``make_micrograph`` (all four scenes, 8 and 16 bit, σ 0.7–7 px, dose 40–1000 e/px, astigmatism up
+to 3 at any angle, detector offset and gain), 108 clean and 133 charged, and print the figures.
+Clean images include the hard cases the issue names: bright particles with the contrast turned
+up (some clipping), edge scenes with strong horizontal edges at a sharp probe, and heavy blur.
+
+"Charged" means strength ≥ VISIBLE_STRENGTH (0.3): below that the artefacts are faint enough that
+a person would often not call the image charged (our judgement from looking at the generated
+images); the weak ones are made and reported but not counted.
+"""
+
+from __future__ import annotations
+
+import math
+import time
+
+import numpy as np
+import pytest
+from scipy import stats
+from skimage.filters import threshold_otsu
+
+from facility.micrograph.charging import (
+    DEFAULT_CHARGING_THRESHOLD,
+    ChargingResult,
+    _otsu,
+    _trimmed_mean,
+    measure_charging,
+)
+from facility.micrograph.synth import make_micrograph
+from facility.micrograph.synth.charging import (
+    KINDS,
+    VISIBLE_STRENGTH,
+    ChargingSpec,
+    apply_charging,
+)
+
+SCENES = ("particles", "fibres", "porous", "edges")
+N_CLEAN = 108
+N_PER_KIND = 18
+N_WEAK = 7
+
+
+def _loguniform(rng: np.random.Generator, lo: float, hi: float) -> float:
+    return float(math.exp(rng.uniform(math.log(lo), math.log(hi))))
+
+
+def _conditions(seed: int) -> dict:
+    """Random but seeded acquisition conditions, spanning the ranges the issue asks for."""
+    rng = np.random.default_rng(seed)
+    return {
+        "seed": seed,
+        "scene": SCENES[seed % 4],
+        "shape": (256, int(rng.integers(256, 289))),
+        "sigma_px": _loguniform(rng, 0.7, 7.0),
+        "astigmatism": 1.0 if rng.random() < 0.5 else float(rng.uniform(1.0, 3.0)),
+        "angle_deg": float(rng.choice([0.0, 90.0])) if rng.random() < 0.3 else rng.uniform(0, 180),
+        "dose": _loguniform(rng, 40.0, 1000.0),
+        "bit_depth": int(rng.choice([8, 16])),
+        "offset": float(rng.uniform(0.0, 0.15)),
+        "gain": _loguniform(rng, 0.6, 1.5),
+    }
+
+
+def _clean_cases() -> list[tuple[str, dict]]:
+    cases = []
+    for i in range(N_CLEAN):
+        c = _conditions(1000 + i)
+        kind = "general"
+        if i % 6 == 1:  # bright particles, contrast turned up so the brightest rims clip
+            c.update(scene="particles", gain=float(np.random.default_rng(i).uniform(1.3, 1.5)))
+            kind = "bright particles"
+        elif i % 6 == 3:  # strong horizontal edges under a sharp (possibly astigmatic) probe
+            c.update(scene="edges", sigma_px=0.7 + 0.5 * (i % 5) / 4, angle_deg=0.0)
+            kind = "horizontal edges"
+        elif i % 6 == 5:  # heavy blur
+            c.update(sigma_px=5.0 + 2.0 * (i % 7) / 6)
+            kind = "heavy blur"
+        cases.append((kind, c))
+    return cases
+
+
+def _charged_cases() -> list[tuple[str, float, dict]]:
+    cases = []
+    for k, kind in enumerate(KINDS):
+        for j in range(N_PER_KIND):
+            c = _conditions(5000 + 100 * k + j)
+            s = VISIBLE_STRENGTH + (1.0 - VISIBLE_STRENGTH) * (j + 0.5) / N_PER_KIND
+            cases.append((kind, s, c))
+    for j in range(N_WEAK):
+        c = _conditions(9000 + j)
+        cases.append((KINDS[j % len(KINDS)], 0.05 + 0.25 * j / N_WEAK, c))
+    return cases
+
+
+@pytest.fixture(scope="module")
+def clean_results() -> list[tuple[str, dict, ChargingResult]]:
+    out = []
+    for kind, c in _clean_cases():
+        img = make_micrograph(**c).image
+        out.append((kind, c, measure_charging(img, bit_depth=c["bit_depth"])))
+    return out
+
+
+@pytest.fixture(scope="module")
+def charged_results() -> list[tuple[str, float, dict, ChargingResult]]:
+    out = []
+    for kind, s, c in _charged_cases():
+        img = make_micrograph(**c, charging=ChargingSpec((kind,), s)).image
+        out.append((kind, s, c, measure_charging(img, bit_depth=c["bit_depth"])))
+    return out
+
+
+def _flagged(r: ChargingResult) -> bool:
+    return r.score >= DEFAULT_CHARGING_THRESHOLD
+
+
+# --- accuracy on the seeded set ------------------------------------------------------------
+
+
+def test_false_positives_on_clean_images(clean_results) -> None:
+    # target from the issue: the flag is raised on ≤ 5 % of clean images
+    flagged = [(k, c, r) for k, c, r in clean_results if _flagged(r)]
+    print(f"\nclean images flagged: {len(flagged)}/{len(clean_results)}")
+    for group in ("general", "bright particles", "horizontal edges", "heavy blur"):
+        sub = [r for k, _, r in clean_results if k == group]
+        n = sum(_flagged(r) for r in sub)
+        print(f"  {group:17s} {n}/{len(sub)}  max score {max(r.score for r in sub):.2f}")
+    for k, c, r in flagged:
+        print(
+            f"  flagged: {k} {c['scene']} σ={c['sigma_px']:.2f} dose={c['dose']:.0f} {r.findings}"
+        )
+    assert len(flagged) <= 0.05 * len(clean_results)
+    # heavy blur must not look charged (σ 5–7 px)
+    blur = [r for k, _, r in clean_results if k == "heavy blur"]
+    assert sum(_flagged(r) for r in blur) <= 0.05 * len(blur)
+
+
+def test_detection_on_charged_images(charged_results) -> None:
+    visible = [(k, s, r) for k, s, _, r in charged_results if s >= VISIBLE_STRENGTH]
+    rates = {}
+    print(f"\ncharged images (strength ≥ {VISIBLE_STRENGTH}) detected, by kind:")
+    for kind in KINDS:
+        sub = [r for k, _, r in visible if k == kind]
+        rates[kind] = sum(_flagged(r) for r in sub) / len(sub)
+        print(f"  {kind:11s} {rates[kind]:.2f} ({len(sub)} images)")
+    overall = sum(_flagged(r) for _, _, r in visible) / len(visible)
+    print(f"  all kinds   {overall:.2f} ({len(visible)} images)")
+    weak = [(k, s, r) for k, s, _, r in charged_results if s < VISIBLE_STRENGTH]
+    n_weak = sum(_flagged(r) for _, _, r in weak)
+    print(f"  weak (strength < {VISIBLE_STRENGTH}, not counted): {n_weak}/{len(weak)} detected")
+    # the issue's target (≥ 90 %) is met for these kinds ...
+    for kind in ("line_jumps", "streaks", "nonsense"):
+        assert rates[kind] >= 0.9, kind
+    # ... and not (or only just) for the others: these floors guard what is reached now (on a
+    # larger development set: clipped 0.88, torn lines 0.87, shear 0.73, tails 0.62)
+    for kind, floor in (("clipped", 0.8), ("torn_lines", 0.75), ("shear", 0.55), ("tails", 0.4)):
+        assert rates[kind] >= floor, kind
+
+
+@pytest.mark.xfail(
+    strict=True, reason="tails and smooth shear are detected less often (see report)"
+)
+def test_overall_detection_meets_issue_target(charged_results) -> None:
+    visible = [r for _, s, _, r in charged_results if s >= VISIBLE_STRENGTH]
+    assert sum(_flagged(r) for r in visible) / len(visible) >= 0.9
+
+
+def test_scores_and_evidence_are_plain_numbers(clean_results, charged_results) -> None:
+    for *_, r in list(clean_results) + list(charged_results):
+        assert 0.0 <= r.score <= 1.0
+        assert all(isinstance(v, float) and math.isfinite(v) for v in r.evidence.values())
+    keys = set(clean_results[0][2].evidence)
+    for name in ("clipped_fraction", "top_spike_ratio", "line_jump", "streak_rows", "streak_ratio"):
+        assert name in keys
+    for name in ("tail_asymmetry", "torn_segments", "slip_gain"):
+        assert name in keys
+
+
+# --- the artefacts -------------------------------------------------------------------------
+
+
+def _disc_scene() -> np.ndarray:
+    rng = np.random.default_rng(7)
+    yy, xx = np.mgrid[0:256, 0:256]
+    sig = np.full((256, 256), 100.0)
+    for _ in range(30):
+        cy, cx, r = rng.uniform(0, 256), rng.uniform(0, 256), rng.uniform(4, 14)
+        sig[(yy - cy) ** 2 + (xx - cx) ** 2 < r * r] = 220.0
+    return sig
+
+
+def test_spec_rejects_unknown_kinds_and_strengths() -> None:
+    with pytest.raises(ValueError):
+        ChargingSpec(("sparkles",), 0.5)
+    with pytest.raises(ValueError):
+        ChargingSpec(("streaks",), 1.5)
+
+
+@pytest.mark.parametrize("kind", KINDS)
+def test_artefacts_are_seeded_graded_and_leave_the_input_alone(kind: str) -> None:
+    sig = _disc_scene()
+    before = sig.copy()
+    spec = ChargingSpec((kind,), 0.7)
+    a = apply_charging(sig, spec, np.random.default_rng(3), 400.0)
+    b = apply_charging(sig, spec, np.random.default_rng(3), 400.0)
+    assert np.array_equal(sig, before)
+    assert np.array_equal(a, b)  # same seed, same artefact
+    assert np.all(a >= 0)
+    assert not np.allclose(a, sig)
+    # strength 0 is no artefact; a stronger one changes more
+    zero = apply_charging(sig, ChargingSpec((kind,), 0.0), np.random.default_rng(3), 400.0)
+    assert np.array_equal(zero, sig)
+    weak = apply_charging(sig, ChargingSpec((kind,), 0.2), np.random.default_rng(3), 400.0)
+    assert np.abs(a - sig).sum() > np.abs(weak - sig).sum()
+
+
+def test_clipped_patches_reach_full_scale() -> None:
+    # by definition the patch saturates the detector: expected signal at or above full scale
+    sig = _disc_scene()
+    out = apply_charging(sig, ChargingSpec(("clipped",), 0.5), np.random.default_rng(1), 400.0)
+    assert np.count_nonzero(out >= 400.0) > 100
+    assert np.count_nonzero(sig >= 400.0) == 0
+
+
+def test_line_jumps_move_whole_lines() -> None:
+    sig = _disc_scene()
+    out = apply_charging(sig, ChargingSpec(("line_jumps",), 0.8), np.random.default_rng(2), 400.0)
+    ratio = out / sig
+    # a whole-line brightness change: one factor per line, changing from line to line
+    assert np.allclose(ratio, ratio[:, :1])
+    assert np.ptp(ratio[:, 0]) > 0.1
+
+
+# --- the detector's building blocks against reference libraries ----------------------------
+
+
+def test_trimmed_mean_matches_scipy() -> None:
+    # reference: scipy.stats.trim_mean (cuts the same share from each end)
+    x = np.random.default_rng(0).integers(0, 255, size=(40, 64)).astype(float)
+    assert np.allclose(_trimmed_mean(x, axis=1), stats.trim_mean(x, 0.25, axis=1))
+
+
+def test_otsu_matches_scikit_image() -> None:
+    # reference: skimage.filters.threshold_otsu (Otsu 1979), same number of bins
+    rng = np.random.default_rng(4)
+    values = np.concatenate([rng.normal(60, 8, 5000), rng.normal(150, 15, 2000)])
+    width = np.ptp(values) / 128
+    assert abs(_otsu(values) - threshold_otsu(values, nbins=128)) <= width
+
+
+# --- behaviour on odd input -----------------------------------------------------------------
+
+
+def test_flat_and_tiny_images() -> None:
+    assert measure_charging(np.full((300, 300), 80, dtype=np.uint8)).score == 0.0
+    assert measure_charging(np.zeros((20, 500), dtype=np.uint16)).score == 0.0
+    with pytest.raises(ValueError):
+        measure_charging(np.zeros((64, 64, 3), dtype=np.uint8))
+
+
+def test_eight_and_sixteen_bit_agree() -> None:
+    # the statistics are ratios and z-scores, so a 16-bit copy (×257, top level 65535) of an
+    # 8-bit image must score the same
+    img = make_micrograph(
+        seed=11, shape=(288, 288), scene="particles", charging=ChargingSpec(("streaks",), 0.6)
+    ).image
+    r8 = measure_charging(img)
+    r16 = measure_charging(img.astype(np.uint16) * 257)
+    assert abs(r8.score - r16.score) < 0.02
+    assert _flagged(r8)
+
+
+def test_float_image_and_detector_offset() -> None:
+    img = make_micrograph(
+        seed=12, shape=(288, 288), scene="fibres", charging=ChargingSpec(("line_jumps",), 0.6)
+    ).image
+    r = measure_charging(img.astype(np.float64) + 1000.0)
+    assert _flagged(r)
+    assert "line_jumps" in r.findings
+
+
+# --- speed ----------------------------------------------------------------------------------
+
+
+def test_full_frame_speed() -> None:
+    # target from the brief: ≤ 0.15 s for 2048 × 1536 on one core; CPU time, so that other
+    # processes on a shared machine do not count against it
+    img = make_micrograph(
+        seed=5,
+        shape=(1536, 2048),
+        scene="particles",
+        bit_depth=16,
+        sigma_px=2.0,
+        charging=ChargingSpec(("clipped",), 0.6),
+    ).image
+    measure_charging(img)
+    times = []
+    for _ in range(5):
+        t0 = time.process_time()
+        measure_charging(img)
+        times.append(time.process_time() - t0)
+    # the minimum of repeated runs is the usual estimate of the cost itself (Python's timeit docs)
+    print(f"\nmeasure_charging 2048×1536 16-bit: best {min(times):.3f} s CPU of 5 runs")
+    assert min(times) <= 0.15
