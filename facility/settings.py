@@ -118,6 +118,11 @@ USE_TZ = True
 # --- Files ---------------------------------------------------------------------------------
 STATIC_URL = "static/"
 STATIC_ROOT = Path(env.str("STATIC_ROOT", str(VAR_DIR / "static")))
+# Served by whitenoise; in development it finds files in static/ without collectstatic.
+WHITENOISE_USE_FINDERS = DEBUG
+WHITENOISE_AUTOREFRESH = DEBUG
+if DEBUG:
+    STATIC_ROOT.mkdir(parents=True, exist_ok=True)  # whitenoise warns about a missing root
 STATICFILES_DIRS = [BASE_DIR / "static"] if (BASE_DIR / "static").is_dir() else []
 MEDIA_URL = "media/"
 MEDIA_ROOT = Path(env.str("MEDIA_ROOT", str(VAR_DIR / "media")))

@@ -19,6 +19,7 @@ pages = [
     ),
     path("sign-out/", auth_views.LogoutView.as_view(), name="logout"),
     path("messages/", people.notification_list, name="notification-list"),
+    path("messages/read/", people.notification_read, name="notification-read"),
     # Instruments, their week calendars and the check-in station at each microscope.
     path("instruments/", instruments.instrument_list, name="instrument-list"),
     path("instruments/<slug:code>/", instruments.instrument_detail, name="instrument-detail"),

@@ -150,7 +150,8 @@ def _same_request(
     return earlier
 
 
-def _may_change(booking: Booking, by: AbstractBaseUser) -> bool:
+def may_change(booking: Booking, by: AbstractBaseUser) -> bool:
+    """Who may move or cancel a booking: who booked it, their group leader, or staff."""
     return is_staff(by) or booking.user_id == by.id or booking.account.group_id in led_group_ids(by)
 
 
@@ -171,7 +172,7 @@ def move(
             .select_related("instrument", "account")
             .get(pk=booking.pk)
         )
-        if not _may_change(booking, by):
+        if not may_change(booking, by):
             raise NotAllowed("Only the person who booked, their group leader or staff can move it.")
         if booking.state not in (BookingState.REQUESTED, BookingState.CONFIRMED):
             raise Conflict(f"A booking that is {booking.get_state_display().lower()} cannot move.")
@@ -218,7 +219,7 @@ def cancel(*, booking: Booking, by: AbstractBaseUser, now: dt.datetime | None = 
             .select_related("instrument", "account")
             .get(pk=booking.pk)
         )
-        if not _may_change(booking, by):
+        if not may_change(booking, by):
             raise NotAllowed(
                 "Only the person who booked, their group leader or staff can cancel it."
             )

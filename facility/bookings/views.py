@@ -19,6 +19,7 @@ from facility.bookings import feeds, services
 from facility.bookings.forms import LOCAL_INPUT, BookingForm, show_refusal
 from facility.bookings.models import LIVE_STATES, Booking, BookingState
 from facility.bookings.queries import visible_to
+from facility.bookings.services import may_change
 from facility.bookings.weekgrid import monday_of
 from facility.errors import DomainError, NotAllowed
 from facility.instruments.models import Instrument
@@ -33,16 +34,6 @@ def _week_url(booking: Booking) -> str:
     monday = monday_of(timezone.localdate(booking.starts_at))
     url = reverse("instrument-detail", args=[booking.instrument.code])
     return f"{url}?week={monday.isoformat()}"
-
-
-def may_change(booking: Booking, user) -> bool:
-    """Mirrors the service's rule (who booked, their group leader, staff) to show or hide buttons;
-    the service still decides."""
-    return (
-        is_staff(user)
-        or booking.user_id == user.pk
-        or booking.account.group_id in led_group_ids(user)
-    )
 
 
 def _parse_local(text: str | None) -> dt.datetime | None:

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import datetime as dt
+import hashlib
 from decimal import ROUND_HALF_UP, Decimal
 from typing import Any
 
@@ -31,6 +32,7 @@ from facility.logbook.models import (
 )
 from facility.people.models import Account
 from facility.people.queries import group_ids_of, is_staff
+from facility.people.services import notify_staff
 
 # How early before a booking's start its holder may check in.
 EARLY_CHECK_IN = dt.timedelta(minutes=30)
@@ -374,6 +376,30 @@ def update_conditions(*, conditions: Conditions, by: AbstractBaseUser, **values:
         conditions.save()
         flags.recompute(session=conditions.session)
         return conditions
+
+
+def report_fault(*, session: InstrumentSession, by: AbstractBaseUser, text: str) -> int:
+    """Add a fault report to the session and tell the staff; returns how many were told.
+
+    The same words reported twice on one session are kept once and tell the staff once.
+    """
+    text = (text or "").strip()
+    if not text:
+        raise Invalid("Describe the fault.", fields={"fault_report": ["Required."]})
+    with transaction.atomic():
+        _may_log(session, by)
+        session = InstrumentSession.objects.select_for_update().get(pk=session.pk)
+        earlier = session.fault_report.strip()
+        if text not in earlier:
+            session.fault_report = f"{earlier}\n\n{text}" if earlier else text
+            session.save(update_fields=["fault_report"])
+    who = by.get_full_name() or by.get_username()
+    return notify_staff(
+        subject=f"Fault reported on {session.instrument.name}",
+        body=f"{who} reported during the session of {session.started_at:%Y-%m-%d %H:%M}:\n\n{text}",
+        link=f"/sessions/{session.pk}/",
+        topic=f"fault:{session.pk}:{hashlib.sha256(text.encode()).hexdigest()[:16]}",
+    )
 
 
 def update_session(

@@ -114,7 +114,7 @@ def upload_micrograph(
     """
     if not (may_upload(session, by) or instrument_pc):
         raise NotAllowed("Only the session's operator or facility staff can add images to it.")
-    if session.ended_at is not None and not is_staff(by) and not _within_grace(session):
+    if not accepts_uploads_from(session, by):
         raise Closed("This session is checked out; ask staff to add late images.")
     original_name = original_name or str(getattr(upload, "name", "") or "")
     cleaned = clean_condition_values(conditions or {})
@@ -161,7 +161,10 @@ def upload_micrograph(
 UPLOAD_GRACE_HOURS = 12
 
 
-def _within_grace(session: InstrumentSession) -> bool:
+def accepts_uploads_from(session: InstrumentSession, by: AbstractBaseUser) -> bool:
+    """Open sessions take images; closed ones for a grace period, and from staff always."""
+    if session.ended_at is None or is_staff(by):
+        return True
     return timezone.now() - session.ended_at <= dt.timedelta(hours=UPLOAD_GRACE_HOURS)
 
 

@@ -130,7 +130,7 @@ def check_edges(
     hi = np.sum(values * w * (t > 1), 1) / wsum_hi
     p = np.stack([lo, hi - lo, np.zeros(k), np.full(k, math.log(sigma_guess))], 1)
     eye = np.eye(4)
-    for _ in range(12):
+    for _ in range(8):
         b, amp, t0, ls = p.T
         sg = np.exp(ls)[:, None]
         z = (t - t0[:, None]) / sg

@@ -84,8 +84,9 @@ def _no_signal(reason: str, limit: float) -> Sharpness:
 
 def _edges(crop: np.ndarray, sigma: float, noise: float) -> EdgeCheck | None:
     edges = check_edges(crop, sigma, noise)
-    # a poor first guess sets the wrong filter scale and strip length: measure once more
-    if edges is not None and abs(math.log(edges.profile_sigma_px / sigma)) > math.log(1.3):
+    # a first guess far too small leaves the strips too short for the edges, one far too large
+    # smooths them away: then measure once more from the edges' own reading
+    if edges is not None and not 0.5 < edges.profile_sigma_px / sigma < 1.3:
         again = check_edges(crop, edges.profile_sigma_px, noise)
         if again is not None:
             edges = again

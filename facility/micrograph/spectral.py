@@ -38,7 +38,7 @@ FOUR_PI2 = 4.0 * math.pi**2
 EULER_GAMMA = 0.5772156649015329
 # Weak priors: scene exponent (Porod 3 … natural scenes 2), and the log ratio of the probe axes.
 ALPHA_PRIOR = (2.75, 0.75)
-ANISOTROPY_PRIOR_SD = 0.35
+ANISOTROPY_PRIOR_SD = 0.8
 SIGMA_BOUNDS = (0.05, 40.0)
 ALPHA_BOUNDS = (0.5, 6.0)
 LOSS_SCALE = 3.0

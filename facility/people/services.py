@@ -9,6 +9,7 @@ from django.contrib.auth import get_user_model
 from django.contrib.auth.models import AbstractBaseUser
 from django.core.mail import send_mail
 from django.db import IntegrityError, transaction
+from django.utils import timezone
 
 from facility.people.models import Notification
 
@@ -50,6 +51,14 @@ def notify(
         except Exception:  # any transport error
             log.exception("could not e-mail notification %s to %s", note.pk, user.pk)
     return note
+
+
+def mark_read(*, user: AbstractBaseUser, ids: list[int] | None = None) -> int:
+    """Mark a person's notifications read (all unread ones when `ids` is None); returns how many."""
+    qs = Notification.objects.filter(user=user, read_at__isnull=True)
+    if ids is not None:
+        qs = qs.filter(id__in=ids)
+    return qs.update(read_at=timezone.now())
 
 
 def notify_staff(*, subject: str, body: str = "", link: str = "", topic: str = "") -> int:

@@ -2,12 +2,14 @@
 
 from __future__ import annotations
 
+from django.contrib import messages
 from django.contrib.auth.decorators import login_required
 from django.http import HttpRequest, HttpResponse
-from django.shortcuts import render
-from django.views.decorators.http import require_GET
+from django.shortcuts import redirect, render
+from django.views.decorators.http import require_GET, require_POST
 
 from facility.people.models import Notification
+from facility.people.services import mark_read
 
 
 @login_required
@@ -19,3 +21,11 @@ def notification_list(request: HttpRequest) -> HttpResponse:
         "people/notification_list.html",
         {"notes": notes, "unread": [n for n in notes if n.read_at is None], "nav": "notifications"},
     )
+
+
+@login_required
+@require_POST
+def notification_read(request: HttpRequest) -> HttpResponse:
+    count = mark_read(user=request.user)
+    messages.success(request, f"{count} message{'s' if count != 1 else ''} marked as read.")
+    return redirect("notification-list")

@@ -25,3 +25,20 @@ def test_messages_are_private_and_links_stay_on_site(as_user, facility, frozen):
     assert "2 unread" in html
     # The count in the navigation.
     assert 'aria-label="2 unread"' in html
+
+
+def test_mark_all_read(client, facility):
+    from facility.people.models import Notification
+    from facility.people.services import notify
+
+    notify(user=facility.researcher_a, subject="one", email=False)
+    notify(user=facility.researcher_a, subject="two", email=False)
+    notify(user=facility.researcher_b, subject="not mine", email=False)
+    client.force_login(facility.researcher_a)
+    assert client.get("/messages/read/").status_code == 405  # a change needs a POST
+    response = client.post("/messages/read/", follow=True)
+    assert "2 messages marked as read." in response.content.decode()
+    assert not Notification.objects.filter(user=facility.researcher_a, read_at__isnull=True)
+    assert (
+        Notification.objects.filter(user=facility.researcher_b, read_at__isnull=True).count() == 1
+    )

@@ -34,7 +34,6 @@ from facility.logbook.forms import (
 )
 from facility.logbook.models import AnalysisState, Flag, InstrumentSession, Severity
 from facility.people.queries import is_staff
-from facility.people.services import notify_staff
 
 SEVERITY_RANK = {Severity.PROBLEM: 0, Severity.WARNING: 1, Severity.INFO: 2}
 
@@ -162,7 +161,7 @@ def _page(
                 "prefilled": last is not None,
                 "fault_form": FaultForm(prefix="fault"),
                 "checkout_form": CheckOutForm(),
-                "may_upload": session.is_open or is_staff(user) or uploads._within_grace(session),
+                "may_upload": uploads.accepts_uploads_from(session, user),
             }
         )
         context.update(forms)
@@ -293,21 +292,12 @@ def session_fault(request: HttpRequest, pk: int) -> HttpResponse:
     form = FaultForm(request.POST, prefix="fault")
     if not form.is_valid():
         return _page(request, session, status=400, fault_form=form)
-    text = form.cleaned_data["fault_report"].strip()
-    earlier = session.fault_report.strip()
-    combined = f"{earlier}\n\n{text}" if earlier and text not in earlier else text
     try:
-        services.update_session(session=session, by=request.user, fault_report=combined)
+        told = services.report_fault(
+            session=session, by=request.user, text=form.cleaned_data["fault_report"]
+        )
     except DomainError as error:
         return _page(request, session, status=_refused(form, error), fault_form=form)
-    who = request.user.get_full_name() or request.user.get_username()
-    # The same words reported twice on the same session tell the staff once.
-    told = notify_staff(
-        subject=f"Fault reported on {session.instrument.name}",
-        body=f"{who} reported during the session of {session.started_at:%Y-%m-%d %H:%M}:\n\n{text}",
-        link=reverse("session-detail", args=[session.pk]),
-        topic=f"fault:{session.pk}:{hashlib.sha256(text.encode()).hexdigest()[:16]}",
-    )
     return _done(
         request,
         session,
