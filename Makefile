@@ -48,3 +48,7 @@ migrations-check: $(STAMP)
 
 bench: $(STAMP)
 	$(PY) benchmarks/assess_bench.py
+	$(PY) benchmarks/pipeline_bench.py
+	$(PY) benchmarks/billing_bench.py
+	$(PY) benchmarks/pages_bench.py
+	@echo "benchmarks/finder_bench.py needs PostgreSQL; run it by hand (see its --help)"

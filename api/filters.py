@@ -9,6 +9,7 @@ from __future__ import annotations
 
 import django_filters as df
 from django.db.models import Exists, OuterRef, QuerySet
+from rest_framework.filters import OrderingFilter
 
 from facility.bookings.models import Booking, BookingState, Purpose
 from facility.instruments.models import VacuumMode
@@ -26,6 +27,20 @@ from facility.logbook.models import (
     SpecimenForm,
 )
 from facility.people.models import Account
+
+
+class Ordering(OrderingFilter):
+    """DRF's ordering, with the allowed values listed in the schema."""
+
+    def get_schema_operation_parameters(self, view) -> list[dict]:
+        parameters = super().get_schema_operation_parameters(view)
+        fields = list(getattr(view, "ordering_fields", None) or [])
+        for parameter in parameters:
+            parameter["schema"]["enum"] = [p + f for f in fields for p in ("", "-")]
+            parameter["description"] = (
+                "Order by one of the listed fields; a leading '-' reverses it."
+            )
+        return parameters
 
 
 class BookingFilter(df.FilterSet):

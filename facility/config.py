@@ -87,6 +87,16 @@ class Config:
             raise self._fail(name, value, "a postgres:// or sqlite:/// URL")
         return config
 
+    def cache(self, name: str, default: str) -> dict[str, Any]:
+        value = self._raw(name) or default
+        try:
+            config = environ.Env.cache_url_config(value)
+        except Exception as exc:
+            raise self._fail(name, value, f"a cache URL ({exc})") from None
+        if not config.get("BACKEND"):
+            raise self._fail(name, value, "a redis://, locmemcache:// or dummycache:// URL")
+        return config
+
     def email(self, name: str, default: str) -> dict[str, Any]:
         value = self._raw(name) or default
         try:

@@ -41,6 +41,7 @@ INSTALLED_APPS = [
     "rest_framework",
     "django_filters",
     "drf_spectacular",
+    "drf_spectacular_sidecar",
     "simple_history",
     "facility.people",
     "facility.instruments",
@@ -108,6 +109,10 @@ AUTH_PASSWORD_VALIDATORS = [
 LOGIN_URL = "login"
 LOGIN_REDIRECT_URL = "home"
 LOGOUT_REDIRECT_URL = "login"
+
+# --- Cache (API throttles) --------------------------------------------------------------------
+# In production point this at Redis so that throttle counts hold across gunicorn workers.
+CACHES = {"default": env.cache("CACHE_URL", "locmemcache://")}
 
 # --- Time ----------------------------------------------------------------------------------
 LANGUAGE_CODE = "en-gb"
@@ -227,6 +232,11 @@ SPECTACULAR_SETTINGS = {
     "SERVE_AUTHENTICATION": [],
     "COMPONENT_SPLIT_REQUEST": True,
     "SCHEMA_PATH_PREFIX": "/api/v1",
+    # The docs page's scripts and styles come from the installed sidecar package, not a CDN, so
+    # it works on a facility network without internet.
+    "SWAGGER_UI_DIST": "SIDECAR",
+    "SWAGGER_UI_FAVICON_HREF": "SIDECAR",
+    "REDOC_DIST": "SIDECAR",
     "ENUM_NAME_OVERRIDES": {
         "InstrumentKindEnum": "facility.instruments.models.InstrumentKind",
         "AccountKindEnum": "facility.people.models.AccountKind",
@@ -272,6 +282,19 @@ METADATA_MISMATCH_TOLERANCE = env.float("METADATA_MISMATCH_TOLERANCE", 0.05, min
 # Micrographs still pending after this long are queued again (a lost message).
 ANALYSIS_STALE_MINUTES = env.int("ANALYSIS_STALE_MINUTES", 15, minimum=1)
 ANALYSIS_MAX_ATTEMPTS = env.int("ANALYSIS_MAX_ATTEMPTS", 5, minimum=1)
+
+# --- Billing -------------------------------------------------------------------------------
+BILLING_CURRENCY = env.str("BILLING_CURRENCY", "EUR")
+if not (len(BILLING_CURRENCY) == 3 and BILLING_CURRENCY.isalpha() and BILLING_CURRENCY.isupper()):
+    raise ImproperlyConfigured(
+        f"Setting BILLING_CURRENCY={BILLING_CURRENCY!r} is not valid: expected an ISO 4217 code "
+        "such as EUR."
+    )
+# Lines under the facility name on printed statements (address, tax number), separated by ";".
+BILLING_HEADER_LINES = [
+    line.strip() for line in env.str("BILLING_HEADER_LINES", "").split(";") if line.strip()
+]
+BILLING_PAYMENT_NOTE = env.str("BILLING_PAYMENT_NOTE", "")
 
 # --- Upkeep --------------------------------------------------------------------------------
 # Alert staff when a counter is forecast to reach its limit within this many days.

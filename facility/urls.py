@@ -7,8 +7,11 @@ from django.contrib.auth import views as auth_views
 from django.urls import include, path
 
 from facility.bookings import views as bookings
+from facility.finder import views as finder
 from facility.logbook.views import home, instruments, session, station
 from facility.people import views as people
+from facility.people import views_tokens as api_tokens
+from facility.upkeep import views as upkeep
 
 pages = [
     path("", home.home, name="home"),
@@ -51,7 +54,38 @@ pages = [
     path("sessions/<int:pk>/fault/", session.session_fault, name="session-fault"),
     path("sessions/<int:pk>/images/", session.session_upload, name="session-upload"),
     path("flags/<int:pk>/dismiss/", session.flag_dismiss, name="flag-dismiss"),
-    # Billing, upkeep, the finder and API tokens add their page routes here when they land.
+    # The finder: search, start a session from its suggestion, thumbnails of shared hits.
+    path("finder/", finder.finder, name="finder"),
+    path("finder/start/", finder.start_from_suggestion, name="finder-start"),
+    path("finder/thumbnails/<int:pk>", finder.hit_thumbnail, name="finder-thumbnail"),
+    path("finder/charging/", finder.charging, name="charging-report"),
+    # Upkeep (staff): counters, charts, service events, meter readings, limits, alerts, audit.
+    path("upkeep/", upkeep.overview, name="upkeep"),
+    path("upkeep/alerts/<int:pk>/acknowledge/", upkeep.acknowledge_alert, name="upkeep-alert-ack"),
+    path("upkeep/<slug:code>/", upkeep.instrument_upkeep, name="upkeep-instrument"),
+    path("upkeep/<slug:code>/chart.svg", upkeep.counter_chart, name="upkeep-chart"),
+    path(
+        "upkeep/<slug:code>/service-events/",
+        upkeep.record_service_event,
+        name="upkeep-service-event",
+    ),
+    path(
+        "upkeep/<slug:code>/meter-readings/",
+        upkeep.record_meter_reading,
+        name="upkeep-meter-reading",
+    ),
+    path("upkeep/<slug:code>/limits/", upkeep.set_limit, name="upkeep-limit"),
+    path("upkeep/<slug:code>/audit/", upkeep.audit_export, name="upkeep-audit"),
+    # API tokens: one's own; staff also issue instrument-PC tokens and stop anyone's.
+    path("tokens/", api_tokens.token_list, name="api-tokens"),
+    path("tokens/new/", api_tokens.create_token, name="api-token-create"),
+    path(
+        "tokens/new-instrument-pc/",
+        api_tokens.create_instrument_token,
+        name="api-token-create-instrument",
+    ),
+    path("tokens/<int:pk>/revoke/", api_tokens.revoke_token, name="api-token-revoke"),
+    # Billing adds its page routes here when they land.
 ]
 
 urlpatterns = [

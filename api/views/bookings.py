@@ -7,11 +7,10 @@ from drf_spectacular.types import OpenApiTypes
 from drf_spectacular.utils import OpenApiParameter, extend_schema, extend_schema_view
 from rest_framework import status
 from rest_framework.decorators import action
-from rest_framework.filters import OrderingFilter
 from rest_framework.request import Request
 from rest_framework.response import Response
 
-from api.filters import BookingFilter
+from api.filters import BookingFilter, Ordering
 from api.serializers.bookings import BookingCreateIn, BookingMoveIn, BookingOut
 from api.views.base import IDEMPOTENCY_HEADER, ApiViewSet, idempotency_key, visible_or_404
 from api.views.people import accounts_visible_to, users_visible_to
@@ -36,7 +35,7 @@ class BookingViewSet(ApiViewSet):
     """Bookings: yours and your groups'; staff see all."""
 
     queryset = Booking.objects.none()
-    filter_backends = [DjangoFilterBackend, OrderingFilter]
+    filter_backends = [DjangoFilterBackend, Ordering]
     filterset_class = BookingFilter
     ordering_fields = ["starts_at", "created_at", "id"]
     ordering = ("-starts_at", "-id")

@@ -5,11 +5,10 @@ from __future__ import annotations
 from django_filters.rest_framework import DjangoFilterBackend
 from drf_spectacular.utils import extend_schema, extend_schema_view
 from rest_framework.decorators import action
-from rest_framework.filters import OrderingFilter
 from rest_framework.request import Request
 from rest_framework.response import Response
 
-from api.filters import FlagFilter
+from api.filters import FlagFilter, Ordering
 from api.serializers.flags import DismissIn, FlagOut
 from api.views.base import ApiViewSet
 from facility.logbook import flags
@@ -27,7 +26,7 @@ class FlagViewSet(ApiViewSet):
     """Findings on the sessions you may see, with evidence and what to change."""
 
     queryset = Flag.objects.none()
-    filter_backends = [DjangoFilterBackend, OrderingFilter]
+    filter_backends = [DjangoFilterBackend, Ordering]
     filterset_class = FlagFilter
     ordering_fields = ["id"]
     ordering = ("-id",)

@@ -7,12 +7,12 @@ from django_filters.rest_framework import DjangoFilterBackend
 from drf_spectacular.types import OpenApiTypes
 from drf_spectacular.utils import extend_schema, extend_schema_view
 from rest_framework.decorators import action
-from rest_framework.filters import OrderingFilter, SearchFilter
+from rest_framework.filters import SearchFilter
 from rest_framework.negotiation import BaseContentNegotiation
 from rest_framework.request import Request
 from rest_framework.response import Response
 
-from api.filters import MicrographFilter
+from api.filters import MicrographFilter, Ordering
 from api.serializers.micrographs import AssessmentOut, MicrographDetailOut, MicrographOut
 from api.views.base import ApiViewSet
 from facility.errors import NotFound
@@ -41,7 +41,7 @@ class MicrographViewSet(ApiViewSet):
     """Micrographs of the sessions you may see."""
 
     queryset = Micrograph.objects.none()
-    filter_backends = [DjangoFilterBackend, SearchFilter, OrderingFilter]
+    filter_backends = [DjangoFilterBackend, SearchFilter, Ordering]
     filterset_class = MicrographFilter
     search_fields = ["original_name"]
     ordering_fields = ["uploaded_at", "size_bytes", "id"]

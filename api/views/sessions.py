@@ -12,12 +12,12 @@ from drf_spectacular.utils import (
 )
 from rest_framework import status
 from rest_framework.decorators import action
-from rest_framework.filters import OrderingFilter, SearchFilter
+from rest_framework.filters import SearchFilter
 from rest_framework.parsers import MultiPartParser
 from rest_framework.request import Request
 from rest_framework.response import Response
 
-from api.filters import SessionFilter
+from api.filters import Ordering, SessionFilter
 from api.serializers.micrographs import MicrographOut, MicrographUploadIn
 from api.serializers.sessions import (
     CheckInIn,
@@ -55,7 +55,7 @@ class SessionViewSet(ApiViewSet):
     """Instrument sessions (logbook entries): yours and your groups'; staff see all."""
 
     queryset = InstrumentSession.objects.none()
-    filter_backends = [DjangoFilterBackend, SearchFilter, OrderingFilter]
+    filter_backends = [DjangoFilterBackend, SearchFilter, Ordering]
     filterset_class = SessionFilter
     search_fields = ["notes", "fault_report", "specimen__name", "specimen__material"]
     ordering_fields = ["started_at", "id"]
@@ -158,14 +158,12 @@ class SessionViewSet(ApiViewSet):
     @action(
         detail=True,
         methods=["patch"],
-        url_path=r"conditions/(?P<conditions_id>[^/.]+)",
+        url_path=r"conditions/(?P<conditions_id>[0-9]+)",
         url_name="conditions-detail",
     )
     def update_conditions(self, request: Request, pk: str, conditions_id: str) -> Response:
         data = self.parse(ConditionsIn)
         session = self.get_object()
-        if not conditions_id.isdigit():
-            conditions_id = "0"
         conditions = visible_or_404(
             session.conditions.all(), "conditions_id", "conditions", pk=int(conditions_id)
         )

@@ -4,11 +4,11 @@ from __future__ import annotations
 
 from django_filters.rest_framework import DjangoFilterBackend
 from drf_spectacular.utils import extend_schema, extend_schema_view
-from rest_framework.filters import OrderingFilter, SearchFilter
+from rest_framework.filters import SearchFilter
 from rest_framework.request import Request
 from rest_framework.response import Response
 
-from api.filters import SpecimenFilter
+from api.filters import Ordering, SpecimenFilter
 from api.serializers.sessions import SpecimenOut
 from api.views.base import ApiViewSet
 from facility.logbook.models import Specimen
@@ -23,7 +23,7 @@ class SpecimenViewSet(ApiViewSet):
     """Specimens of your groups (yours and your groups'); staff see all."""
 
     queryset = Specimen.objects.none()
-    filter_backends = [DjangoFilterBackend, SearchFilter, OrderingFilter]
+    filter_backends = [DjangoFilterBackend, SearchFilter, Ordering]
     filterset_class = SpecimenFilter
     search_fields = ["name", "material", "preparation", "notes"]
     ordering_fields = ["created_at", "id"]

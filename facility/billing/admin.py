@@ -47,6 +47,14 @@ class TariffForm(forms.ModelForm):
         terms = {k: v for k, v in cleaned.items() if k in services.TARIFF_TERMS and v is not None}
         try:
             services.clean_tariff_terms(terms)
+            if self.instance.pk is None and not self.errors:
+                services.check_tariff_version(
+                    instrument=cleaned["instrument"],
+                    rate_category=cleaned["rate_category"],
+                    purpose=cleaned["purpose"],
+                    valid_from=cleaned["valid_from"],
+                    valid_to=cleaned.get("valid_to"),
+                )
         except DomainError as exc:
             raise ValidationError(exc.message) from None
         return cleaned

@@ -154,9 +154,9 @@ def _late_entries(
     drafting again must find the same rows).
     """
     closed = set(
-        Statement.objects.filter(
-            account_id=account_id, state=StatementState.FINAL, month__lt=month
-        ).values_list("month", flat=True)
+        Statement.objects.filter(account_id=account_id, state=StatementState.FINAL, month__lt=month)
+        .order_by()
+        .values_list("month", flat=True)
     )
     if not closed:
         return []

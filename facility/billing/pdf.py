@@ -95,10 +95,11 @@ def statement_pdf(statement: Statement, *, compress: bool = True) -> bytes:
         story.append(Paragraph(f"<b>{escape(label)}:</b> {escape(value)}", styles["head"]))
     story.append(Spacer(1, 4 * mm))
 
+    zone = timezone.get_default_timezone()  # the facility's zone, whoever is looking
     rows: list[list] = [["Date", "Time", "Instrument", "User", "Detail", "Hours", "Amount"]]
     for line in queries.lines_of(statement):
-        start = timezone.localtime(line.starts_at) if line.starts_at else None
-        end = timezone.localtime(line.ends_at) if line.ends_at else None
+        start = timezone.localtime(line.starts_at, zone) if line.starts_at else None
+        end = timezone.localtime(line.ends_at, zone) if line.ends_at else None
         rows.append(
             [
                 f"{start:%Y-%m-%d}" if start else "",

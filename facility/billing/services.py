@@ -99,9 +99,10 @@ class DraftRun:
 
 def _lock_existing(account: Account, month: dt.date) -> Statement | None:
     return (
-        Statement.objects.select_for_update()
+        Statement.objects.select_for_update(of=("self",))
         .select_related("account")
         .filter(account=account, month=month)
+        .order_by("pk")
         .first()
     )
 
@@ -121,7 +122,11 @@ def _create_locked(account: Account, month: dt.date) -> Statement:
     except IntegrityError:
         # Another run created it first; use theirs.
         created = Statement.objects.get(account=account, month=month)
-    statement = Statement.objects.select_for_update().select_related("account").get(pk=created.pk)
+    statement = (
+        Statement.objects.select_for_update(of=("self",))
+        .select_related("account")
+        .get(pk=created.pk)
+    )
     if statement.is_final:
         raise _closed(statement)
     return statement
@@ -312,7 +317,9 @@ def _draft_with_retries(
     for attempt in range(1, _ATTEMPTS + 1):
         try:
             with transaction.atomic():
-                existing = Statement.objects.filter(account=account, month=month).first()
+                existing = (
+                    Statement.objects.filter(account=account, month=month).order_by("pk").first()
+                )
                 if existing is not None and existing.is_final:
                     run.skipped_final.append(account.code)
                     return None
@@ -325,7 +332,7 @@ def _draft_with_retries(
             # A concurrent run took a session first or the database broke a deadlock.
             log.warning("drafting %s %s, attempt %d: %s", account.code, month, attempt, exc)
             if attempt == _ATTEMPTS:
-                run.failed[account.code] = "a concurrent change interfered; run the draft again"
+                run.failed[account.code] = f"not drafted after {attempt} attempts: {exc}"
         except Closed:
             run.skipped_final.append(account.code)
             return None
@@ -381,7 +388,9 @@ def finalise_statement(
     now = now or timezone.now()
     with transaction.atomic():
         current = (
-            Statement.objects.select_for_update().select_related("account").get(pk=statement.pk)
+            Statement.objects.select_for_update(of=("self",))
+            .select_related("account")
+            .get(pk=statement.pk)
         )
         if current.is_final:
             raise _closed(current)
@@ -529,7 +538,7 @@ def remove_adjustment(*, line: Charge, by: AbstractBaseUser) -> None:
     _require_staff(by, "remove adjustments")
     with transaction.atomic():
         statement = (
-            Statement.objects.select_for_update()
+            Statement.objects.select_for_update(of=("self",))
             .select_related("account")
             .get(pk=line.statement_id)
         )
@@ -685,31 +694,55 @@ def add_tariff(
     )
     key = {"instrument": instrument, "rate_category": rate_category, "purpose": purpose}
     with transaction.atomic():
-        versions = list(Tariff.objects.select_for_update().filter(**key).order_by("valid_from"))
-        previous = next(
-            (v for v in versions if v.valid_to is None and v.valid_from < valid_from), None
-        )
-        clash = queries.overlapping_tariffs(
-            instrument_id=instrument.id,
-            rate_category=rate_category,
-            purpose=purpose,
-            valid_from=valid_from,
-            valid_to=valid_to,
-            exclude_ids=(previous.pk,) if previous else (),
-        ).first()
-        if clash is not None:
-            raise Conflict(
-                f"The new tariff's dates overlap {clash}; versions of one tariff may not overlap."
-            )
+        list(Tariff.objects.select_for_update().filter(**key))  # one writer per tariff at a time
+        previous = check_tariff_version(**key, valid_from=valid_from, valid_to=valid_to)
         if previous is not None:
-            if _billed_on_or_after(previous, valid_from):
-                raise Conflict(
-                    f"{previous} already priced sessions on or after {valid_from:%Y-%m-%d} on a "
-                    "final statement; start the new version after them."
-                )
             previous.valid_to = valid_from - dt.timedelta(days=1)
             previous.save(update_fields=["valid_to"])
         return Tariff.objects.create(**key, **terms, created_by=by)
+
+
+def check_tariff_version(
+    *,
+    instrument: Instrument,
+    rate_category: str,
+    purpose: str,
+    valid_from: dt.date,
+    valid_to: dt.date | None,
+) -> Tariff | None:
+    """Whether a new version may start on `valid_from`; returns the version it would close.
+
+    An open-ended new version closes the open-ended one before it (the day before it starts),
+    unless that one already priced later days on a final statement. Any other overlap is refused.
+    Read-only: add_tariff calls it under lock, forms call it to show the refusal early.
+    """
+    previous = None
+    if valid_to is None:
+        previous = Tariff.objects.filter(
+            instrument=instrument,
+            rate_category=rate_category,
+            purpose=purpose,
+            valid_to__isnull=True,
+            valid_from__lt=valid_from,
+        ).first()
+    clash = queries.overlapping_tariffs(
+        instrument_id=instrument.id,
+        rate_category=rate_category,
+        purpose=purpose,
+        valid_from=valid_from,
+        valid_to=valid_to,
+        exclude_ids=(previous.pk,) if previous else (),
+    ).first()
+    if clash is not None:
+        raise Conflict(
+            f"The new tariff's dates overlap {clash}; versions of one tariff may not overlap."
+        )
+    if previous is not None and _billed_on_or_after(previous, valid_from):
+        raise Conflict(
+            f"{previous} already priced sessions on or after {valid_from:%Y-%m-%d} on a "
+            "final statement; start the new version after them."
+        )
+    return previous
 
 
 def update_tariff(*, tariff: Tariff, by: AbstractBaseUser, **changes: Any) -> Tariff:
@@ -719,7 +752,11 @@ def update_tariff(*, tariff: Tariff, by: AbstractBaseUser, **changes: Any) -> Ta
     if unknown:
         raise Invalid(f"These tariff fields cannot be changed: {', '.join(sorted(unknown))}.")
     with transaction.atomic():
-        tariff = Tariff.objects.select_for_update().select_related("instrument").get(pk=tariff.pk)
+        tariff = (
+            Tariff.objects.select_for_update(of=("self",))
+            .select_related("instrument")
+            .get(pk=tariff.pk)
+        )
         if queries.tariff_is_used(tariff):
             raise Closed(
                 f"{tariff} has priced a final statement and is not edited in place; add a new "

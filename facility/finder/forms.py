@@ -79,7 +79,7 @@ def open_sessions_of(user: AbstractBaseUser) -> QuerySet[InstrumentSession]:
 
 
 class StartForm(forms.Form):
-    """"Start from these settings": which open session receives the suggestion."""
+    """ "Start from these settings": which open session receives the suggestion."""
 
     session = forms.ModelChoiceField(
         label="Your open session", queryset=InstrumentSession.objects.none()

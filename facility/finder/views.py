@@ -265,7 +265,9 @@ def micrographs_shown_to(user) -> Any:
 def hit_thumbnail(request: HttpRequest, pk: int) -> HttpResponse:
     """A hit's thumbnail. The logbook's own thumbnail address serves only one's own groups'
     images; a sharing group's hit needs the finder's wider rule."""
-    return downloads.thumbnail_response(get_object_or_404(micrographs_shown_to(request.user), pk=pk))
+    return downloads.thumbnail_response(
+        get_object_or_404(micrographs_shown_to(request.user), pk=pk)
+    )
 
 
 @login_required

@@ -10,6 +10,7 @@ from tests.api.conftest import NOW
 
 
 def at(days: int, hour: int) -> str:
+    """An ISO time `days` after NOW (a Tuesday); +4 and +5 fall on the weekend."""
     return (NOW.replace(hour=hour) + dt.timedelta(days=days)).isoformat()
 
 
@@ -69,7 +70,7 @@ def test_owner_group_and_state_cannot_be_set(world):
 
 def test_booking_idempotency_key(world):
     api = world.client_for("researcher_a")
-    body = booking("KES-01", at(4, 10), at(4, 11))
+    body = booking("KES-01", at(9, 10), at(9, 11))
     key = {"HTTP_IDEMPOTENCY_KEY": "6f1c2b0e-booking-1"}
     first = api.post("/api/v1/bookings/", body, format="json", **key)
     again = api.post("/api/v1/bookings/", body, format="json", **key)
@@ -77,7 +78,7 @@ def test_booking_idempotency_key(world):
     assert first.json()["id"] == again.json()["id"]
     assert Booking.objects.filter(idempotency_key="6f1c2b0e-booking-1").count() == 1
     other = api.post(
-        "/api/v1/bookings/", booking("KES-01", at(5, 10), at(5, 11)), format="json", **key
+        "/api/v1/bookings/", booking("KES-01", at(10, 10), at(10, 11)), format="json", **key
     )
     assert other.status_code == 409
     bad = api.post("/api/v1/bookings/", body, format="json", HTTP_IDEMPOTENCY_KEY="has spaces in")

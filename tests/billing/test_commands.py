@@ -11,7 +11,7 @@ from pathlib import Path
 import pytest
 from django.core.management import CommandError, call_command
 
-from facility.billing.models import Statement, StatementState
+from facility.billing.models import Holiday, Statement, StatementState
 from tests.billing.helpers import add_tariff, at, log_session
 
 pytestmark = pytest.mark.django_db
@@ -111,3 +111,47 @@ def test_bad_month_exits_non_zero_with_one_stderr_line(tmp_path):
     assert done.stderr.strip().splitlines() == [
         "CommandError: month '2027-3' is not in the form YYYY-MM, e.g. 2027-03"
     ]
+
+
+ICS = """BEGIN:VCALENDAR
+VERSION:2.0
+PRODID:-//Beamledger tests//EN
+BEGIN:VEVENT
+UID:easter-monday-2027@example.org
+DTSTART;VALUE=DATE:20270329
+DTEND;VALUE=DATE:20270330
+SUMMARY:Easter Monday
+END:VEVENT
+BEGIN:VEVENT
+UID:closure-2027@example.org
+DTSTART;VALUE=DATE:20271224
+DTEND;VALUE=DATE:20271227
+SUMMARY:Winter closure
+END:VEVENT
+BEGIN:VEVENT
+UID:meeting@example.org
+DTSTART:20270310T090000Z
+DTEND:20270310T100000Z
+SUMMARY:Staff meeting
+END:VEVENT
+END:VCALENDAR
+"""
+
+
+def test_import_holidays_from_icalendar(facility, tmp_path):
+    # RFC 5545 §3.6.1: for all-day events DTEND is exclusive, so 24–27 Dec is three days.
+    path = tmp_path / "holidays.ics"
+    path.write_text(ICS.replace("\n", "\r\n"))
+    out = io.StringIO()
+    call_command("import_holidays", str(path), "--by", "mara.manager", stdout=out)
+    assert [(h.day.isoformat(), h.name) for h in Holiday.objects.all()] == [
+        ("2027-03-29", "Easter Monday"),
+        ("2027-12-24", "Winter closure"),
+        ("2027-12-25", "Winter closure"),
+        ("2027-12-26", "Winter closure"),
+    ]  # the timed staff meeting is not a holiday
+    assert out.getvalue().strip().endswith("4 holiday(s) recorded")
+    bad = tmp_path / "bad.ics"
+    bad.write_text("not a calendar")
+    with pytest.raises(CommandError, match="not an iCalendar file"):
+        call_command("import_holidays", str(bad), "--by", "mara.manager", stdout=io.StringIO())

@@ -132,3 +132,14 @@ def test_draft_pdf_says_it_is_not_a_bill(facility):
     pdf = statement_pdf(draft(facility), compress=False)
     assert b"DRAFT statement" in pdf
     assert Statement.objects.get().state == "draft"
+
+
+def test_statement_export_query_count_does_not_grow_with_lines(
+    final, facility, django_assert_num_queries
+):
+    # One query for the statement (with account and group), one for its lines with their
+    # instruments and users: N lines never cost N queries.
+    with django_assert_num_queries(2):
+        exports.statement_csv(final)
+    with django_assert_num_queries(2):
+        exports.statement_data(final)

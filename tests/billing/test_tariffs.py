@@ -118,3 +118,55 @@ def test_postgres_refuses_overlapping_versions_written_directly(facility):
             hourly_rate=Decimal("10.00"),
             valid_from=dt.date(2027, 5, 1),
         )
+
+
+def test_a_bounded_version_inside_an_open_one_is_refused(facility):
+    # Closing the open version for a one-month price would leave no tariff after it.
+    add_tariff(facility)
+    with pytest.raises(Conflict, match="overlap"):
+        add_tariff(
+            facility,
+            hourly_rate="70.00",
+            valid_from=dt.date(2027, 7, 1),
+            valid_to=dt.date(2027, 7, 31),
+        )
+
+
+def _form(fac, **changes):
+    data = {
+        "instrument": fac.sem.pk,
+        "rate_category": "internal",
+        "purpose": "own_use",
+        "hourly_rate": "95.00",
+        "staff_hourly_rate": "0.00",
+        "currency": "EUR",
+        "increment_minutes": "15",
+        "minimum_charge": "0.00",
+        "out_of_hours_factor": "1.000",
+        "charge_basis": "used",
+        "late_cancellation_share": "0.000",
+        "no_show_share": "0.000",
+        "valid_from": "2027-05-01",
+        "valid_to": "",
+        "note": "",
+    }
+    data.update(changes)
+    return data
+
+
+def test_admin_adds_a_version_through_the_service(facility, admin_client):
+    from django.urls import reverse
+
+    first = add_tariff(facility)
+    url = reverse("admin:billing_tariff_add")
+    assert admin_client.post(url, _form(facility)).status_code == 302
+    first.refresh_from_db()
+    assert first.valid_to == dt.date(2027, 4, 30)
+    assert Tariff.objects.get(valid_from=dt.date(2027, 5, 1)).hourly_rate == Decimal("95.00")
+    # An overlapping bounded version is shown as a form error and writes nothing.
+    page = admin_client.post(url, _form(facility, valid_from="2027-06-01", valid_to="2027-06-30"))
+    assert page.status_code == 200 and b"may not overlap" in page.content
+    assert page.context["adminform"].form.errors
+    bad = admin_client.post(url, _form(facility, valid_from="2027-08-01", hourly_rate="-5.00"))
+    assert b"must not be negative" in bad.content
+    assert Tariff.objects.count() == 2

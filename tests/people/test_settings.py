@@ -31,6 +31,7 @@ def _check(env: dict[str, str]) -> subprocess.CompletedProcess:
         ({"UPLOAD_MAX_PIXELS": "lots"}, "UPLOAD_MAX_PIXELS"),
         ({"EMAIL_URL": "pigeon://loft"}, "EMAIL_URL"),
         ({"STORAGE_BACKEND": "floppy"}, "STORAGE_BACKEND"),
+        ({"CACHE_URL": "bogus://x"}, "CACHE_URL"),
     ],
 )
 def test_bad_setting_fails_at_start_naming_the_variable(env, named):

@@ -171,7 +171,23 @@ def _page(
 @login_required
 @require_GET
 def session_detail(request: HttpRequest, pk: int) -> HttpResponse:
-    return _page(request, _session(request, pk))
+    session = _session(request, pk)
+    suggested = suggested_conditions(request)
+    if suggested and _can_log(session, request.user):
+        # The finder's "review them first" link: its suggestion fills the form, nothing is saved.
+        form = ConditionsForm(prefix="cond", initial=suggested)
+        return _page(request, session, conditions_form=form, prefilled=False, suggested=True)
+    return _page(request, session)
+
+
+def suggested_conditions(request: HttpRequest) -> dict[str, Any]:
+    """Conditions handed over in the address (`?suggested=1&cond-...`), as the form's initial
+    values; a value the form would refuse is left out rather than shown as an error."""
+    if request.GET.get("suggested") != "1":
+        return {}
+    form = ConditionsForm(request.GET, prefix="cond")
+    form.is_valid()
+    return {k: v for k, v in form.cleaned_data.items() if v not in (None, "")}
 
 
 @login_required
