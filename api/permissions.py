@@ -23,11 +23,13 @@ def token_of(request: Request) -> ApiToken | None:
 
 
 def scope_for(request: Request, view) -> str:
-    """The scope an action needs: upload actions `upload`, other reads `read`, other writes `write`."""
+    """The scope an action needs: upload actions `upload`, reads (and read-only POSTs) `read`,
+    other writes `write`."""
     action = getattr(view, "action", None)
     if action in getattr(view, "upload_actions", ()):
         return Scope.UPLOAD
-    if request.method in permissions.SAFE_METHODS:
+    # A search sent as POST (a long query in a JSON body) changes nothing: reading suffices.
+    if request.method in permissions.SAFE_METHODS or action in getattr(view, "read_actions", ()):
         return Scope.READ
     return Scope.WRITE
 

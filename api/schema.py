@@ -41,11 +41,14 @@ class ApiAutoSchema(AutoSchema):
     def error_statuses(self) -> list[str]:
         codes = ["401", "403", "404"]
         action = getattr(self.view, "action", None)
-        unsafe = self.method not in SAFE_METHODS
-        if unsafe or self._is_list_view() or action in getattr(self.view, "query_actions", ()):
+        has_body = self.method not in SAFE_METHODS
+        changes = has_body and action not in getattr(self.view, "read_actions", ())
+        if has_body or self._is_list_view() or action in getattr(self.view, "query_actions", ()):
             codes.append("400")
-        if unsafe:
-            codes += ["409", "415"]
+        if has_body:
+            codes.append("415")
+        if changes:
+            codes.append("409")
         if action in getattr(self.view, "upload_actions", ()):
             codes.append("413")
         if action in getattr(self.view, "throttled_actions", {}):

@@ -1,7 +1,6 @@
 """URLs of the REST API, mounted at /api/v1/ (namespace "api").
 
-Each resource registers its viewset here; billing and upkeep endpoints slot in the same way when
-those apps land. Anything else under /api/v1/ answers a JSON 404, never an HTML page.
+Each resource registers its viewset here; billing endpoints slot in the same way. Anything else under /api/v1/ answers a JSON 404, never an HTML page.
 """
 
 from __future__ import annotations
@@ -13,6 +12,7 @@ from rest_framework.routers import SimpleRouter
 
 from api.views import (
     bookings,
+    conditions,
     flags,
     instruments,
     micrographs,
@@ -20,8 +20,9 @@ from api.views import (
     sessions,
     specimens,
     tokens,
+    upkeep,
 )
-from api.views.fallback import not_found
+from api.views.fallback import not_found, with_slash
 
 app_name = "api"
 SCHEMA_CACHE_SECONDS = 600
@@ -35,6 +36,18 @@ router.register("flags", flags.FlagViewSet, basename="flag")
 router.register("specimens", specimens.SpecimenViewSet, basename="specimen")
 router.register("accounts", people.AccountViewSet, basename="account")
 router.register("tokens", tokens.TokenViewSet, basename="token")
+router.register("conditions", conditions.ConditionsViewSet, basename="conditions")
+# Upkeep (staff only), per instrument; the instrument code is part of the path.
+UPKEEP_INSTRUMENT = r"upkeep/instruments/(?P<code>[^/]+)"
+router.register("upkeep/instruments", upkeep.UpkeepInstrumentViewSet, basename="upkeep-instrument")
+router.register(
+    f"{UPKEEP_INSTRUMENT}/service-events", upkeep.ServiceEventViewSet, basename="service-event"
+)
+router.register(
+    f"{UPKEEP_INSTRUMENT}/meter-readings", upkeep.MeterReadingViewSet, basename="meter-reading"
+)
+router.register(f"{UPKEEP_INSTRUMENT}/limits", upkeep.LimitViewSet, basename="limit")
+router.register("upkeep/alerts", upkeep.AlertViewSet, basename="alert")
 
 urlpatterns = [
     # The schema changes only with a deploy; generating it takes most of a second.
@@ -42,5 +55,6 @@ urlpatterns = [
     path("docs/", SpectacularSwaggerView.as_view(url_name="api:schema"), name="api-docs"),
     path("me/", people.MeView.as_view(), name="me"),
     *router.urls,
+    path("conditions/search", with_slash, name="conditions-search-no-slash"),
     re_path(r"^.*$", not_found, name="not-found"),
 ]

@@ -6,6 +6,7 @@ from django.contrib import admin
 from django.contrib.auth import views as auth_views
 from django.urls import include, path
 
+from facility.billing import views as billing
 from facility.bookings import views as bookings
 from facility.finder import views as finder
 from facility.logbook.views import home, instruments, session, station
@@ -85,7 +86,27 @@ pages = [
         name="api-token-create-instrument",
     ),
     path("tokens/<int:pk>/revoke/", api_tokens.revoke_token, name="api-token-revoke"),
-    # Billing adds its page routes here when they land.
+    # Billing: statements (staff, finance, group leaders), finalising, exports, usage.
+    path("statements/", billing.statement_list, name="statement-list"),
+    path("statements/draft/", billing.draft_month, name="statement-draft-month"),
+    path("statements/export.csv", billing.month_export, name="statement-month-export"),
+    path("statements/<int:pk>/", billing.statement_detail, name="statement-detail"),
+    path("statements/<int:pk>/finalise/", billing.finalise, name="statement-finalise"),
+    path("statements/<int:pk>/statement.csv", billing.statement_csv, name="statement-csv"),
+    path("statements/<int:pk>/statement.pdf", billing.statement_pdf_download, name="statement-pdf"),
+    path(
+        "statements/<int:pk>/adjustments/",
+        billing.add_adjustment,
+        name="statement-adjustment-add",
+    ),
+    path(
+        "statements/<int:pk>/adjustments/<int:line>/remove/",
+        billing.remove_adjustment,
+        name="statement-adjustment-remove",
+    ),
+    path("usage/", billing.usage_report, name="usage-report"),
+    path("usage/<slug:kind>.svg", billing.usage_chart, name="usage-chart"),
+    path("usage/<slug:what>.csv", billing.usage_export, name="usage-export"),
 ]
 
 urlpatterns = [

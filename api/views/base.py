@@ -23,6 +23,9 @@ class ApiViewSet(viewsets.GenericViewSet):
     throttled_actions: dict[str, list[type]] = {}
     # Actions that read query parameters through a serializer (so may answer 400).
     query_actions: tuple[str, ...] = ()
+    # Actions that change nothing even when POSTed (a search with a JSON body): `read` scope,
+    # and no 409 in the schema.
+    read_actions: tuple[str, ...] = ()
     # The path from the listed model to its instrument's id, for instrument-bound tokens.
     instrument_path: str | None = None
 

@@ -22,6 +22,7 @@ from django.db.models import Max, Q
 from django.utils import timezone
 
 from facility.billing import drafting, queries
+from facility.billing.checksum import LINE_FIELDS
 from facility.billing.drafting import PricingContext
 from facility.billing.models import (
     Charge,
@@ -166,29 +167,9 @@ def _refresh(statement: Statement, *, problems: list[str] | None = None, now=Non
     return statement
 
 
-# What makes two priced lines the same line (everything but identity and creation time).
-_SAME_LINE = (
-    "position",
-    "kind",
-    "session_id",
-    "booking_id",
-    "tariff_id",
-    "instrument_id",
-    "user_id",
-    "purpose",
-    "starts_at",
-    "ends_at",
-    "billed_minutes",
-    "out_of_hours_minutes",
-    "staff_minutes",
-    "hourly_rate",
-    "staff_hourly_rate",
-    "out_of_hours_factor",
-    "share",
-    "currency",
-    "amount",
-    "description",
-)
+# What makes two priced lines the same line: the checksummed fields that pricing sets (the
+# manual ones — reason, who made it, what it corrects — belong to adjustments only).
+_SAME_LINE = tuple(f for f in LINE_FIELDS if f not in {"reason", "created_by_id", "corrects_id"})
 
 
 def _regenerate(

@@ -143,6 +143,7 @@ def assess(
         astig_ev.update(
             {
                 "ratio": ratio,
+                "fitted_ratio": float(sharp.evidence.get("fitted_ratio", ratio)),
                 "angle_deg": sharp.astigmatism_angle_deg,
                 "sigma_major_px": sharp.sigma_major_px,
                 "sigma_minor_px": sharp.sigma_minor_px,
@@ -151,21 +152,20 @@ def assess(
                 "long_axis": sharp.long_axis,
             }
         )
-        if ratio > settings.astigmatism_ratio:
-            if not sharp.major_measurable:
-                astig_ev["note"] = "long axis below the resolvable size; not flagged"
-            else:
-                flags.append("astigmatism")
-                if sharp.long_axis == "scan lines":
-                    astig_ev["note"] = (
-                        "long axis along the scan lines: drift or vibration during the line scan "
-                        "blurs this way too, not only the stigmator"
-                    )
-                elif sharp.long_axis == "across scan lines":
-                    astig_ev["note"] = (
-                        "long axis across the scan lines: line-to-line drift or vibration "
-                        "blurs this way too, not only the stigmator"
-                    )
+        # the ratio is taken between the axes as far as they are resolvable, so a long axis
+        # below the resolvable size can never raise the flag
+        if ratio > settings.astigmatism_ratio and sharp.major_measurable:
+            flags.append("astigmatism")
+            if sharp.long_axis == "scan lines":
+                astig_ev["note"] = (
+                    "long axis along the scan lines: drift or vibration during the line scan "
+                    "blurs this way too, not only the stigmator"
+                )
+            elif sharp.long_axis == "across scan lines":
+                astig_ev["note"] = (
+                    "long axis across the scan lines: line-to-line drift or vibration "
+                    "blurs this way too, not only the stigmator"
+                )
     evidence["astigmatism"] = astig_ev
 
     charge_ev: dict[str, float | str] = dict(charging.evidence)

@@ -11,9 +11,11 @@ Two classic measurements, both on the same automatically chosen edges:
   from a Gaussian-derivative filter of scale s, whose own contribution is removed in quadrature.
 
 Both assume ideal steps, so specimen detail finer than the probe (bright edge rims, thin
-coatings) makes them read *sharper* than the probe: they are reported beside the spectral
-estimate, not mixed into it. Edges are found by non-maximum suppression of the gradient
-magnitude, one per block so that strips do not overlap, and only far above the noise.
+coatings) makes them read *sharper* than the probe; :mod:`.sharpness` therefore combines them
+with the spectral estimate only with a systematic allowance. Edges are found by non-maximum
+suppression of the gradient magnitude (Canny 1986), one per block so that strips do not overlap,
+and only well above the noise. :func:`fit_edge_shape` turns the per-edge widths into the probe
+covariance, since an edge with normal n is blurred by σₙ² = nᵀΣn.
 """
 
 from __future__ import annotations

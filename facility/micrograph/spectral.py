@@ -6,21 +6,24 @@ probe of covariance Σ has a power spectrum
 
     P(f) = K · |f|^(−α) · exp(−4π² fᵀΣf) + N,
 
-the power law being the specimen (α ≈ 3 for sharp boundaries, Porod's law, ≈ 2 for natural
-scenes), the exponential the squared probe transfer function and N the white counting noise.
-Fitting Σ to the spectrum measures the probe, not the dose: more noise raises N but leaves the
-roll-off where it is. Our implementation choices:
+the power law being the specimen (α ≈ 3 for sharp boundaries, Porod's law for the radially
+averaged 2-D spectrum; ≈ 2 for natural scenes), the exponential the squared probe transfer
+function and N the white counting noise. Fitting Σ to the spectrum measures the probe, not the
+dose: more noise raises N but leaves the roll-off where it is. Our implementation choices:
 
-* the image is replaced by its periodic component (Moisan, "Periodic plus smooth image
-  decomposition", J. Math. Imaging Vis. 39 (2011) 161) instead of being windowed, which removes the
-  border cross without smearing the spectrum;
+* the image (or each tile of a large one, Bartlett-averaged) is replaced by its periodic
+  component (Moisan, "Periodic plus smooth image decomposition", J. Math. Imaging Vis. 39 (2011)
+  161) instead of being windowed, which removes the border cross without smearing the spectrum;
 * the periodogram is averaged in cells (geometric rings × angular sectors) and fitted with the
   Whittle likelihood of averaged periodogram values (deviance residuals of a Gamma law), so cells
-  with few coefficients are weighted correctly;
+  with few coefficients are weighted correctly; a soft-L1 loss limits cells that the specimen
+  makes stray from a power law (periodic patterns, single bright lines of the spectrum);
 * the sector amplitudes K_s are free, because specimens are rarely isotropic (aligned fibres,
   straight edges), while the exponent α and the probe Σ are shared; Σ is written as
   σ²·expm([[u, v], [v, −u]]), so σ is the geometric-mean probe size, e^√(u²+v²) the ratio
   σ_major/σ_minor and ½·atan2(v, u) the direction of the major axis;
+* weak priors keep the fit defined where the data say little: α ~ N(2.75, 0.75) (between the
+  two regimes above) and u, v ~ N(0, 0.8) (anisotropy up to a factor ~2 at one s.d.);
 * the column of coefficients with no variation along the scan lines is left out, since whole-line
   brightness changes (charging, unstable detectors) put their power there.
 """
@@ -35,20 +38,19 @@ import numpy as np
 from scipy import fft, optimize
 
 FOUR_PI2 = 4.0 * math.pi**2
-EULER_GAMMA = 0.5772156649015329
 # Weak priors: scene exponent (Porod 3 … natural scenes 2), and the log ratio of the probe axes.
 ALPHA_PRIOR = (2.75, 0.75)
 ANISOTROPY_PRIOR_SD = 0.8
 SIGMA_BOUNDS = (0.05, 40.0)
 ALPHA_BOUNDS = (0.5, 6.0)
-LOSS_SCALE = 3.0
+LOSS_SCALE = 3.0  # soft-L1 scale, in deviance units: cells off the model by more count less
 # Cells: 12 sectors of 15° and 60 geometric rings (8 % wide). The model is evaluated at each cell's
 # mean frequency moments; the exponent varies inside a cell, and by Jensen's inequality the mean
 # of exp is above exp of the mean, which biases σ low — by ≈ 2–5 % at this cell size (checked on
 # fields with an exact model spectrum), against ≈ 8 % with 8 × 40 cells.
 SECTORS = 12
 RINGS = 60
-TILE_MAX = 1024  # soft-L1 scale, in deviance units: cells off the model by more count less
+TILE_MAX = 1024  # larger images are Bartlett-averaged over tiles of at most this size
 
 
 @dataclass(frozen=True)
@@ -254,7 +256,7 @@ def _noise_start(q: np.ndarray, power: np.ndarray) -> float:
 
 
 def fit_isotropic(cells: SpectrumCells) -> optimize.OptimizeResult:
-    """Fit K q^−α exp(−4π²σ²q²) + N to the ring averages; several starting σ, best kept."""
+    """Fit K q^−α exp(−4π²σ²q²) + N to the ring averages, from the best point of a σ profile."""
     n, power, q, q2 = _radial(cells)
     lq = np.log(q)
     a0, a_sd = ALPHA_PRIOR

@@ -8,6 +8,7 @@ gets a 403 on every page here.
 
 from __future__ import annotations
 
+import datetime as dt
 from typing import Any
 from urllib.parse import urlencode
 
@@ -52,10 +53,13 @@ def chart_url(status: CounterStatus) -> str:
     return f"{reverse('upkeep-chart', args=[spec.instrument.code])}?{urlencode(params)}"
 
 
+NBSP = "\u00a0"  # keeps a figure and its unit on one line in narrow table cells
+
+
 def _amount(value: float | None, unit: str) -> str:
     if value is None:
         return "–"
-    return f"{value:,.0f} {unit}" if unit == "cycles" else f"{value:,.1f} {unit}"
+    return f"{value:,.0f}{NBSP}{unit}" if unit == "cycles" else f"{value:,.1f}{NBSP}{unit}"
 
 
 STATE_WORDS = {
@@ -73,7 +77,7 @@ def counter_row(status: CounterStatus) -> dict[str, Any]:
     words, tone = STATE_WORDS.get(status.state, (status.state, "info"))
     forecast = status.forecast
     rates = [
-        (weeks, "–" if rate is None else f"{rate:.1f} {spec.unit}/week")
+        (weeks, "–" if rate is None else f"{rate:.1f}{NBSP}{spec.unit}/week")
         for weeks, rate in status.rates.items()
     ]
     return {
@@ -88,9 +92,10 @@ def counter_row(status: CounterStatus) -> dict[str, Any]:
         "tone": tone,
         "rates": rates,
         "forecast": forecast.describe(tz) if forecast else "no rating, no forecast",
+        # The two dates behind "± n days", when they are at least a day apart.
         "forecast_range": (
             (timezone.localtime(forecast.earliest), timezone.localtime(forecast.latest))
-            if forecast and forecast.earliest and forecast.latest
+            if forecast and forecast.plus_minus and forecast.plus_minus >= dt.timedelta(days=1)
             else None
         ),
         "since": status.since,

@@ -10,8 +10,8 @@ from drf_spectacular.generators import SchemaGenerator
 
 PREFIX = "/api/v1/"
 METHODS = ("get", "post", "put", "patch", "delete")
-# Resolver patterns that are not endpoints of their own.
-NOT_ENDPOINTS = {"not-found"}
+# Resolver patterns that are not endpoints of their own (the JSON 404, a slash redirect).
+NOT_ENDPOINTS = {"not-found", "conditions-search-no-slash"}
 
 
 def _template(pattern: URLPattern) -> str:

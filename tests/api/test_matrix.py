@@ -17,6 +17,7 @@ import pytest
 from django.core.files.uploadedfile import SimpleUploadedFile
 from django.db import transaction
 
+from facility.upkeep.models import Alert
 from tests.api.conftest import NOW, ROLES, World, small_tiff
 from tests.api.endpoints import resolver_endpoints, schema_operations
 
@@ -69,6 +70,30 @@ def day(days: int, hour: int) -> str:
 
 
 S, B, M, F = "/api/v1/sessions/", "/api/v1/bookings/", "/api/v1/micrographs/", "/api/v1/flags/"
+U = "/api/v1/upkeep/instruments/"
+
+
+def staff_only(status: int) -> dict[str, int]:
+    return cells(403, 403, 403, 403, status)
+
+
+STAFF_READS = staff_only(200)
+
+
+def _alert(w: World) -> Alert:
+    """An open alert on the facility's SEM (made inside each role's rolled-back transaction)."""
+    return Alert.objects.create(
+        topic="matrix:fe-sem:emitter:warn",
+        counter_key="fe-sem:emitter_hours",
+        instrument=w.facility.sem,
+        counter="emitter_hours",
+        level="warn",
+        value=7000,
+        rated=8000,
+        message="Field-emission SEM — emitter past its warn level",
+        raised_at=NOW,
+    )
+
 
 # (METHOD, schema path) → (how to call it with group A's objects, expected status by role)
 MATRIX: dict[tuple[str, str], tuple[Callable[[World], Call], dict[str, int]]] = {
@@ -197,6 +222,54 @@ MATRIX: dict[tuple[str, str], tuple[Callable[[World], Call], dict[str, int]]] = 
     ("GET", "/api/v1/specimens/{id}/"): (
         lambda w: Call(f"/api/v1/specimens/{w.a.specimen.pk}/"),
         GROUP_A_READS,
+    ),
+    # The finder: everyone signed in may search (hits of others come anonymised); group A
+    # shares its details, so its images' thumbnails reach every role, not the upload token.
+    ("GET", "/api/v1/conditions/search/"): (
+        lambda w: Call("/api/v1/conditions/search/?material_class=polymer"),
+        EVERYONE_READS,
+    ),
+    ("POST", "/api/v1/conditions/search/"): (
+        lambda w: Call("/api/v1/conditions/search/", {"material_class": "polymer"}),
+        EVERYONE_READS,
+    ),
+    ("GET", "/api/v1/conditions/thumbnails/{micrograph_id}/"): (
+        lambda w: Call(f"/api/v1/conditions/thumbnails/{w.a.micrograph.pk}/"),
+        EVERYONE_READS,
+    ),
+    # Upkeep is staff business: everyone else 403, whatever the URL names.
+    ("GET", U + "{code}/counters/"): (lambda w: Call(f"{U}fe-sem/counters/"), STAFF_READS),
+    ("GET", U + "{code}/service-events/"): (
+        lambda w: Call(f"{U}fe-sem/service-events/"),
+        STAFF_READS,
+    ),
+    ("POST", U + "{code}/service-events/"): (
+        lambda w: Call(
+            f"{U}fe-sem/service-events/",
+            {"kind": "alignment", "performed_at": day(-1, 9), "cost": "80.00"},
+        ),
+        staff_only(201),
+    ),
+    ("GET", U + "{code}/meter-readings/"): (
+        lambda w: Call(f"{U}fe-sem/meter-readings/"),
+        STAFF_READS,
+    ),
+    ("POST", U + "{code}/meter-readings/"): (
+        lambda w: Call(
+            f"{U}fe-sem/meter-readings/",
+            {"counter": "emitter_hours", "value": "1200.5", "read_at": day(0, 9)},
+        ),
+        staff_only(201),
+    ),
+    ("GET", U + "{code}/limits/"): (lambda w: Call(f"{U}fe-sem/limits/"), STAFF_READS),
+    ("POST", U + "{code}/limits/"): (
+        lambda w: Call(f"{U}fe-sem/limits/", {"counter": "emitter_hours", "rated": "8000"}),
+        STAFF_READS,
+    ),
+    ("GET", "/api/v1/upkeep/alerts/"): (lambda w: Call("/api/v1/upkeep/alerts/"), STAFF_READS),
+    ("POST", "/api/v1/upkeep/alerts/{id}/acknowledge/"): (
+        lambda w: Call(f"/api/v1/upkeep/alerts/{_alert(w).pk}/acknowledge/"),
+        STAFF_READS,
     ),
     # Tokens are managed with the login session only: any token gets 403 here.
     ("GET", "/api/v1/tokens/"): (lambda w: Call("/api/v1/tokens/"), EVERYONE_READS),

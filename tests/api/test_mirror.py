@@ -86,6 +86,7 @@ def values_for(name: str, schema: dict, world: World) -> list[str]:
         "vacuum_mode": ["high", "low"],
         "purpose": ["own_use"],
         "state": ["requested", "done", "pending"],
+        "level": ["warn", "limit"],
     }
     kind = schema.get("items", schema)
     if "enum" in kind:
@@ -143,6 +144,8 @@ CASES = [
 SHARED = {"/api/v1/instruments/"}
 # Lists of one person's own rows: only that person (the side's researcher) sees their side's.
 PERSONAL = {"/api/v1/tokens/"}
+# Staff-only lists (upkeep): no one else gets a row, whatever they ask — a 403 every time.
+STAFF_ONLY = {"/api/v1/upkeep/alerts/"}
 
 
 @pytest.mark.parametrize("path", list_operations())
@@ -150,6 +153,13 @@ def test_lists_never_show_the_other_group(world, path):
     _extra_rows(world.a)
     _extra_rows(world.b)
     operation = schema_operations()[("GET", path)]
+    if path in STAFF_ONLY:
+        for role, *_ in CASES:
+            api = world.client_for(role)
+            for params in variations(path, operation, world):
+                response = api.get(f"{path}?{urlencode(params)}")
+                assert response.status_code == 403, (role, path, params)
+        return
     for role, own, forbidden, full in CASES:
         api = world.client_for(role)
         marks = [m for side in forbidden for m in fingerprints(getattr(world, side))]

@@ -1,6 +1,6 @@
 """Accuracy of ``assess`` on a fixed seeded set of synthetic micrographs (issue 3 targets).
 
-The set (208 images, 256–384 px, so it runs in seconds per hundred images):
+The set (208 images of 256 or 320 px, so that it runs in well under a minute):
 
 * 120 clean isotropic images: σ log-uniform 0.7–7 px, dose log-uniform 40–1000 e/px;
 * 48 clean astigmatic images: σ_major/σ_minor uniform 2–3 at a random angle, geometric-mean σ
@@ -29,7 +29,7 @@ from facility.micrograph.synth import SCENES, make_micrograph
 from facility.micrograph.synth.charging import KINDS, VISIBLE_STRENGTH, ChargingSpec
 
 SEED = 20261201
-SIZES = (256, 320, 384)
+SIZES = (256, 320)
 N_ISOTROPIC, N_ASTIGMATIC, N_CHARGED = 120, 48, 40
 RISE = special.ndtri(0.8) - special.ndtri(0.2)  # 20–80 % rise of Φ, in σ
 
@@ -121,7 +121,7 @@ def test_resolution_within_25_percent(cases: list[Case]) -> None:
     errors = [c.result.resolution_px / (RISE * c.sigma) - 1.0 for c in chosen]
     share = float(np.mean([abs(e) <= 0.25 for e in errors]))
     worst = sorted(
-        (abs(e), c.params["scene"], round(c.sigma, 2), round(c.params["dose"]))
+        (round(abs(float(e)), 3), c.params["scene"], round(c.sigma, 2), round(c.params["dose"]))
         for e, c in zip(errors, chosen, strict=True)
     )[-3:]
     msg = _report(

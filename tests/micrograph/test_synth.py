@@ -76,6 +76,8 @@ def test_elliptical_blur_has_the_requested_second_moments() -> None:
 
 
 def test_mean_signal_is_the_dose() -> None:
+    # dose = mean detected electrons per pixel (the generator's stated definition, DOMAIN.md:
+    # dose per pixel = I·t/e); undo the stated offset and gain and compare
     m = make_micrograph(
         seed=5, shape=(256, 256), scene="porous", dose=250.0, bit_depth=16, offset=0.1, gain=0.9
     )
@@ -102,6 +104,7 @@ def test_counting_noise_is_poisson(dose: float) -> None:
 
 
 def test_offset_and_gain_move_the_grey_levels() -> None:
+    # detector black level and contrast (common practice, no source)
     dark = make_micrograph(seed=2, shape=(128, 128), offset=0.0, gain=0.7, bit_depth=16).image
     bright = make_micrograph(seed=2, shape=(128, 128), offset=0.2, gain=1.2, bit_depth=16).image
     assert np.median(bright) > np.median(dark) + 0.15 * 65535

@@ -77,9 +77,9 @@ def make_micrograph(
     ny, nx = int(shape[0]), int(shape[1])
     sig_major = sigma_px * math.sqrt(astigmatism)
     sig_minor = sigma_px / math.sqrt(astigmatism)
-    pad = math.ceil(5.0 * sig_major) + 4
+    pad = math.ceil(5.0 * sig_major) + 4  # the Gaussian is down to 4e-6 of its peak at 5σ
     ss = SUPERSAMPLE
-    # the working grid is padded up to FFT-friendly sizes; the crop is taken from its corner
+    # the working grid is padded up to FFT-friendly sizes; the crop starts ``pad`` pixels in
     big = (
         fft.next_fast_len((ny + 2 * pad) * ss, True),
         fft.next_fast_len((nx + 2 * pad) * ss, True),

@@ -6,9 +6,11 @@ import datetime as dt
 from decimal import Decimal
 
 from django import template
+from django.contrib.auth import get_user_model
 from django.contrib.auth.models import AbstractBaseUser
+from django.db.models import Count, Exists, OuterRef, Q
 
-from facility.people.models import Notification
+from facility.people.models import Group, Notification, Profile, Role
 
 register = template.Library()
 
@@ -24,6 +26,37 @@ def unread_count(context: template.Context) -> int:
     if cached is None:
         cached = Notification.objects.filter(user=user, read_at__isnull=True).count()
         request._unread_count = cached
+    return cached
+
+
+@register.simple_tag(takes_context=True)
+def nav_facts(context: template.Context) -> dict[str, object]:
+    """What the navigation needs to know about the signed-in person, in one query per request:
+    unread notifications, and whether they read statements (finance, or a group's leader).
+    Staff need no query for the second: they read every statement."""
+    request = context.get("request")
+    user: AbstractBaseUser | None = getattr(request, "user", None)
+    if user is None or not user.is_authenticated:
+        return {"unread": 0, "statements": False}
+    cached = getattr(request, "_nav_facts", None)
+    if cached is None:
+        row = (
+            get_user_model()
+            .objects.filter(pk=user.pk)
+            .annotate(
+                unread=Count("notifications", filter=Q(notifications__read_at__isnull=True)),
+                leads=Exists(Group.objects.filter(leader=OuterRef("pk"))),
+                finance=Exists(Profile.objects.filter(user=OuterRef("pk"), role=Role.FINANCE)),
+            )
+            .values("unread", "leads", "finance")
+            .first()
+        ) or {"unread": 0, "leads": False, "finance": False}
+        cached = {
+            "unread": row["unread"],
+            "statements": bool(user.is_staff or row["leads"] or row["finance"]),
+        }
+        request._nav_facts = cached
+        request._unread_count = cached["unread"]
     return cached
 
 
