@@ -154,6 +154,7 @@ def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--sessions", type=int, default=100_000)
     parser.add_argument("--queries", type=int, default=60)
+    parser.add_argument("--verbose", action="store_true", help="print the slowest queries")
     parser.add_argument(
         "--database-url",
         default="postgres://postgres@127.0.0.1:5432/beamledger_finder_bench",
@@ -189,6 +190,7 @@ def main() -> None:
     viewer = f.UserFactory(username="bench0")
     rng = random.Random(11)
     seconds = []
+    timed = []
     for _ in range(args.queries):
         klass = rng.choice(list(MATERIALS))
         criteria = make_criteria(
@@ -202,6 +204,10 @@ def main() -> None:
         t0 = time.perf_counter()
         search(viewer, criteria)
         seconds.append(time.perf_counter() - t0)
+        timed.append((seconds[-1], criteria))
+    if args.verbose:
+        for took, criteria in sorted(timed, key=lambda t: t[0], reverse=True)[:5]:
+            print(f"  {took * 1000:.0f} ms  {criteria}")
     seconds.sort()
     p95 = seconds[int(0.95 * (len(seconds) - 1))]
     print(f"database: {connection.vendor}, sessions: {args.sessions}, queries: {len(seconds)}")

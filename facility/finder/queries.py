@@ -192,24 +192,61 @@ def _ranked_ids(user: AbstractBaseUser, criteria: Criteria, limit: int) -> list[
     scores: dict[int, float] = {}
     attr_filter = _prefilter(criteria)
     if attr_filter is not None or not criteria.text:
-        qs = pool if attr_filter is None else pool.filter(attr_filter)
-        for pk, score in (
-            qs.annotate(score=attribute_score)
-            .order_by("-score", "-started_at")
-            .values_list("pk", "score")[:limit]
-        ):
-            scores[pk] = float(score)
+        best = _best_by_attributes(pool, criteria, attribute_score, attr_filter, limit)
+        scores.update(best)
     if criteria.text:
         relevance = (
             pool.filter(text_search.text_filter(criteria.text))
             .annotate(relevance=text_search.relevance(criteria.text), score=attribute_score)
-            .order_by("-relevance")
+            # Among the text matches, the best by attributes; the database then computes the
+            # (costly) relevance only for those it returns, not for every match.
+            .order_by("-score", "-started_at")
             .values_list("pk", "relevance", "score")[:TEXT_MATCHES]
         )
         for pk, rel, score in relevance:
             scores[pk] = float(score) + WEIGHTS["text"] * min(1.0, float(rel or 0))
-    ranked = [(pk, sc) for pk, sc in scores.items() if sc > 0]
-    return ranked
+    positive = {pk: sc for pk, sc in scores.items() if sc > 0}
+    return list(_cut(positive, limit).items())
+
+
+def _top(qs, score, limit: int) -> list[tuple[int, float]]:
+    return [
+        (pk, float(value))
+        for pk, value in qs.annotate(score=score)
+        .order_by("-score", "-started_at")
+        .values_list("pk", "score")[:limit]
+    ]
+
+
+def _cut(scores: dict[int, float], limit: int) -> dict[int, float]:
+    """The `limit` best; ties go to the newer session (larger id, as sessions are logged in
+    order — close enough for a tie-break, and it saves fetching dates)."""
+    best = sorted(scores.items(), key=lambda item: (-round(item[1], 9), -item[0]))[:limit]
+    return dict(best)
+
+
+def _best_by_attributes(pool, criteria: Criteria, score, attr_filter, limit: int):
+    """The `limit` best sessions by attribute score.
+
+    First among the sessions that share the strongest given attribute (an indexed, narrow
+    query). That answer is exact when its last score beats anything a session lacking that
+    attribute could reach; otherwise the wide query over every sharing session decides.
+    """
+    if attr_filter is None:
+        return _top(pool, score, limit)
+    for name, field_name in (
+        ("material_class", "specimen__material_class"),
+        ("conductivity", "specimen__conductivity"),
+        ("form", "specimen__form"),
+    ):
+        value = getattr(criteria, name)
+        if value:
+            narrow = _top(pool.filter(**{field_name: value}), score, limit)
+            ceiling = criteria.max_score() - WEIGHTS["text"] * bool(criteria.text) - WEIGHTS[name]
+            if len(narrow) == limit and narrow[-1][1] > ceiling:
+                return narrow
+            break
+    return _top(pool.filter(attr_filter), score, limit)
 
 
 def candidates(user: AbstractBaseUser, criteria: Criteria, limit: int) -> list[InstrumentSession]:

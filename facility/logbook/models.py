@@ -41,9 +41,10 @@ class SpecimenForm(models.TextChoices):
 class Specimen(models.Model):
     name = models.CharField(max_length=160)
     material = models.CharField(max_length=160, help_text="e.g. porous alumina, PCL fibres.")
-    material_class = models.CharField(max_length=16, choices=MaterialClass.choices)
-    conductivity = models.CharField(max_length=16, choices=Conductivity.choices)
-    form = models.CharField(max_length=20, choices=SpecimenForm.choices)
+    # Indexed: the finder narrows its search by these.
+    material_class = models.CharField(max_length=16, choices=MaterialClass.choices, db_index=True)
+    conductivity = models.CharField(max_length=16, choices=Conductivity.choices, db_index=True)
+    form = models.CharField(max_length=20, choices=SpecimenForm.choices, db_index=True)
     feature_size_nm = models.FloatField(
         null=True, blank=True, help_text="Size of the smallest feature of interest, in nm."
     )
