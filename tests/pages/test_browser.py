@@ -236,3 +236,84 @@ def test_book_clash_check_in_upload_check_out(
     session = InstrumentSession.objects.get()
     assert session.ended_at is not None and session.micrographs.count() == 2
     assert os.path.isdir(settings.MEDIA_ROOT)
+
+
+def _weekday_of_last_month(now: dt.datetime) -> dt.datetime:
+    """09:00 on the first Tuesday of the month before `now`: a month that is over."""
+    local = now.astimezone(ZONE)
+    first = (local.replace(day=1) - dt.timedelta(days=1)).replace(day=1)
+    day = first + dt.timedelta(days=(1 - first.weekday()) % 7)
+    return dt.datetime.combine(day.date(), dt.time(9, 0), ZONE)
+
+
+def test_staff_finalise_a_statement(live_server, facility, settings, browser_page, request):
+    from playwright.sync_api import expect
+
+    from facility.billing import services
+    from facility.billing.models import Statement, StatementState
+
+    settings.TIME_ZONE = "Europe/Vienna"
+    start = _weekday_of_last_month(dt.datetime.now(dt.UTC))
+    month = f"{start:%Y-%m}"
+    services.add_tariff(
+        instrument=facility.sem,
+        rate_category="internal",
+        purpose="own_use",
+        hourly_rate="40.00",
+        valid_from=dt.date(2020, 1, 1),
+        by=facility.manager,
+    )
+    f.InstrumentSessionFactory(
+        instrument=facility.sem,
+        operator=facility.researcher_a,
+        account=facility.account_a,
+        started_at=start,
+        ended_at=start + dt.timedelta(hours=2),
+        beam_on_hours=2,
+    )
+    services.draft_month(month=start.date().replace(day=1), by=facility.manager)
+
+    page = browser_page
+    steps = Steps(page, request.node.name)
+    base = live_server.url
+
+    with steps("sign-in"):
+        page.goto(f"{base}/sign-in/")
+        page.get_by_label("Username").fill("mara.manager")
+        page.get_by_label("Password").fill("correct-horse-42")
+        page.get_by_role("button", name="Sign in").click()
+        expect(page.get_by_role("heading", level=1)).to_contain_text("Facility today")
+
+    with steps("statements-of-the-month"):
+        page.get_by_role("link", name="Statements", exact=True).click()
+        # The list opens on the month just ended: the one being billed.
+        expect(page.get_by_role("heading", level=1)).to_contain_text(f"{start:%B %Y}")
+        assert_labelled(page)
+        row = page.locator("tr", has_text="KES-01")
+        # 2 h at 40.00 an hour (hand-computed).
+        expect(row).to_contain_text("80.00 EUR")
+        expect(row).to_contain_text("draft")
+        row.get_by_role("link", name="Review and finalise the statement of KES-01").click()
+
+    with steps("confirm"):
+        expect(page.get_by_role("heading", level=1)).to_contain_text("Finalise the statement of")
+        expect(page.locator(".note-warning")).to_contain_text("Finalising cannot be undone.")
+        assert_labelled(page)
+        page.get_by_role("button", name="Finalise this statement").click()
+
+    with steps("finalised"):
+        expect(page.get_by_role("status").first).to_contain_text(
+            "Statement S-000001 finalised: 80.00 EUR for KES-01"
+        )
+        expect(page.locator("#state")).to_contain_text("The lines match the checksum")
+
+    with steps("reflow-at-200-percent"):
+        page.set_viewport_size({"width": 640, "height": 900})
+        for url in [f"{base}/statements/?month={month}", page.url, f"{base}/usage/?month={month}"]:
+            page.goto(url)
+            assert page.evaluate(OVERFLOW) <= 0, url
+            # Let the charts load now, not while the test database is being torn down.
+            page.wait_for_load_state("networkidle")
+
+    statement = Statement.objects.get()
+    assert statement.state == StatementState.FINAL and statement.number == 1

@@ -88,6 +88,6 @@ def test_home_query_counts_are_pinned(as_user, facility, busy, django_assert_num
     with django_assert_num_queries(8):
         assert researcher.get(reverse("home")).status_code == 200
     # session + user, instruments, today's bookings, open sessions, pending, flags, faults,
-    # notifications, open upkeep alerts, unread count.
-    with django_assert_num_queries(11):
+    # notifications, open upkeep alerts, last month's statements, unread count.
+    with django_assert_num_queries(12):
         assert staff.get(reverse("home")).status_code == 200
