@@ -6,12 +6,12 @@ from django.contrib import admin
 from django.contrib.auth import views as auth_views
 from django.urls import include, path
 
+from api import token_pages as api_tokens
 from facility.billing import views as billing
 from facility.bookings import views as bookings
 from facility.finder import views as finder
 from facility.logbook.views import home, instruments, session, station
 from facility.people import views as people
-from facility.people import views_tokens as api_tokens
 from facility.upkeep import views as upkeep
 
 pages = [

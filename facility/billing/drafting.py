@@ -246,7 +246,8 @@ def _price_session(row: dict, month: dt.date, ctx: PricingContext, draft: Draft)
     )
 
 
-def _price_booking(row: dict, month: dt.date, ctx: PricingContext, draft: Draft) -> None:
+def price_booking(row: dict, month: dt.date, ctx: PricingContext, draft: Draft) -> None:
+    """Price a late-cancelled or no-show booking (a row of _BOOKING_FIELDS) into `draft`."""
     category = row["user__profile__rate_category"] or RateCategory.INTERNAL
     day = ctx.local(row["starts_at"]).date()
     tariff = ctx.tariff_for(row["instrument_id"], category, row["purpose"], day)
@@ -318,7 +319,7 @@ def build(account_id: int, month: dt.date, ctx: PricingContext) -> Draft:
     for row in sessions:
         _price_session(row, month, ctx, draft)
     for row in bookings:
-        _price_booking(row, month, ctx, draft)
+        price_booking(row, month, ctx, draft)
     draft.lines.sort(key=_sort_key)
     if len(draft.currencies) > 1:
         draft.problems.append(

@@ -9,7 +9,6 @@ statement, group leaders their groups' accounts; another account's statement is 
 from __future__ import annotations
 
 import datetime as dt
-from dataclasses import dataclass
 from decimal import Decimal
 from typing import Any
 
@@ -26,15 +25,11 @@ from django.views.decorators.http import require_GET, require_POST
 
 from facility.billing import charts, exports, queries, services, tasks, usage
 from facility.billing.forms import AdjustmentForm, FinaliseForm, MonthForm
-from facility.billing.hours import FacilityCalendar
-from facility.billing.models import Charge, ChargeKind, Holiday, Statement, StatementState
+from facility.billing.models import Charge, ChargeKind, Statement
 from facility.billing.months import first_of, month_bounds, next_month, previous_month
 from facility.billing.pdf import statement_pdf
-from facility.billing.pricing import Terms, price_share
 from facility.bookings.forms import show_refusal
-from facility.bookings.models import Booking
 from facility.errors import DomainError, NotAllowed
-from facility.people.models import RateCategory
 from facility.people.queries import is_staff, led_group_ids
 
 CHART_MONTHS = 12  # the usage charts show the year up to the chosen month
@@ -376,62 +371,3 @@ def usage_export(request: HttpRequest, what: str) -> HttpResponse:
 
 
 # --- Shown on other apps' pages (through billing's template tags) --------------------------
-
-
-@dataclass(frozen=True)
-class Quote:
-    amount: Decimal
-    currency: str
-    description: str
-    share: Decimal
-
-
-def late_cancellation_quote(booking: Booking) -> Quote | None:
-    """What cancelling `booking` late would cost, priced as a draft statement would price it:
-    the tariff in force on the booking's local start date for the booker's rate category and the
-    booking's purpose, its late-cancellation share of the booked time (billing.pricing).
-
-    None when no tariff applies. It mirrors drafting's pricing of a late-cancelled booking and
-    belongs in billing's own reads; it lives here until billing offers it.
-    """
-    tz = _tz()
-    profile = getattr(booking.user, "profile", None)
-    category = (profile.rate_category if profile else "") or RateCategory.INTERNAL
-    day = timezone.localtime(booking.starts_at, tz).date()
-    tariff = queries.tariff_in_force(booking.instrument_id, category, booking.purpose, day)
-    if tariff is None:
-        return None
-    end_day = timezone.localtime(booking.ends_at, tz).date()
-    holidays = frozenset(
-        Holiday.objects.filter(day__gte=day, day__lte=end_day).values_list("day", flat=True)
-    )
-    calendar = FacilityCalendar.for_instrument(booking.instrument, tz=tz, holidays=holidays)
-    price = price_share(
-        Terms.from_tariff(tariff),
-        calendar,
-        (booking.starts_at, booking.ends_at),
-        share=tariff.late_cancellation_share,
-        why="Cancelled late",
-    )
-    return Quote(
-        amount=price.amount,
-        currency=tariff.currency,
-        description=price.description,
-        share=tariff.late_cancellation_share,
-    )
-
-
-def month_end_status(month: dt.date) -> dict[str, Any]:
-    """How far the month's statements are: drafts, finals, problems, totals."""
-    statements = list(queries.statements_of_month(month, include_drafts=True))
-    totals: dict[str, Decimal] = {}
-    for s in statements:
-        if s.currency:
-            totals[s.currency] = totals.get(s.currency, Decimal("0.00")) + s.total
-    return {
-        "month": month,
-        "drafts": sum(1 for s in statements if s.state == StatementState.DRAFT),
-        "finals": sum(1 for s in statements if s.state == StatementState.FINAL),
-        "problems": [s for s in statements if s.problems][:5],
-        "totals": sorted(totals.items()),
-    }

@@ -326,6 +326,19 @@ def _conditions(session: InstrumentSession) -> list[dict[str, Any]]:
     ]
 
 
+def micrographs_shown_to(user: AbstractBaseUser) -> QuerySet[Micrograph]:
+    """Analysed micrographs whose thumbnails a finder hit may show: the same rule as a hit's
+    details (staff; the person's own groups and sessions; groups that share their details)."""
+    qs = Micrograph.objects.filter(state=AnalysisState.DONE)
+    if is_staff(user):
+        return qs
+    return qs.filter(
+        Q(session__account__group__shares_details=True)
+        | Q(session__account__group_id__in=group_ids_of(user))
+        | Q(session__operator=user)
+    )
+
+
 def _may_see(session: InstrumentSession, user: AbstractBaseUser, mine: set[int]) -> bool:
     group = session.account.group
     return is_staff(user) or group.id in mine or group.shares_details

@@ -14,7 +14,6 @@ from urllib.parse import urlencode
 from django.contrib import messages
 from django.contrib.auth.decorators import login_required
 from django.core.exceptions import PermissionDenied
-from django.db.models import Q
 from django.http import HttpRequest, HttpResponse
 from django.shortcuts import get_object_or_404, redirect, render
 from django.urls import reverse
@@ -23,13 +22,13 @@ from django.views.decorators.http import require_GET, require_POST
 from facility.errors import DomainError, NotAllowed
 from facility.finder import charging_report
 from facility.finder.forms import SearchForm, StartForm, open_sessions_of
-from facility.finder.queries import Result, search
+from facility.finder.queries import Result, micrographs_shown_to, search
 from facility.instruments.models import VacuumMode
 from facility.logbook import downloads
 from facility.logbook import queries as logbook_queries
 from facility.logbook import services as logbook_services
-from facility.logbook.models import AnalysisState, ConditionsSource, FlagCode, Micrograph
-from facility.people.queries import group_ids_of, is_staff
+from facility.logbook.models import ConditionsSource, FlagCode
+from facility.people.queries import is_staff
 
 SUGGESTION_LABEL = "Finder suggestion"
 
@@ -245,19 +244,6 @@ def start_from_suggestion(request: HttpRequest) -> HttpResponse:
         "change what you set differently.",
     )
     return redirect(reverse("session-detail", args=[session.pk]) + "#conditions")
-
-
-def micrographs_shown_to(user) -> Any:
-    """Analysed micrographs whose thumbnails a finder hit may show: the same rule as the hits'
-    details (staff; the person's own groups; groups that share their details)."""
-    qs = Micrograph.objects.filter(state=AnalysisState.DONE)
-    if is_staff(user):
-        return qs
-    return qs.filter(
-        Q(session__account__group__shares_details=True)
-        | Q(session__account__group_id__in=group_ids_of(user))
-        | Q(session__operator=user)
-    )
 
 
 @login_required

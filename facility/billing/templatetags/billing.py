@@ -9,7 +9,7 @@ from __future__ import annotations
 
 from django import template
 
-from facility.billing import views
+from facility.billing import quotes, views
 from facility.bookings.models import Booking
 from facility.people.queries import is_staff
 
@@ -21,10 +21,10 @@ def month_end_panel(context: template.Context) -> dict:
     """Drafts, finals and problems of the month just ended, for staff."""
     if not is_staff(context.get("user")):
         return {"shown": False}
-    return {"shown": True, **views.month_end_status(views.last_month())}
+    return {"shown": True, **quotes.month_end_status(views.last_month())}
 
 
 @register.simple_tag
-def late_cancellation_cost(booking: Booking) -> views.Quote | None:
+def late_cancellation_cost(booking: Booking) -> quotes.Quote | None:
     """What a late cancellation of this booking costs under its tariff (None: no tariff)."""
-    return views.late_cancellation_quote(booking)
+    return quotes.late_cancellation_quote(booking)
