@@ -23,6 +23,7 @@ from simple_history.models import HistoricalRecords
 
 from facility.bookings import services as bookings
 from facility.bookings.models import Booking, Purpose
+from facility.demo import billing_data
 from facility.demo import catalogue as cat
 from facility.demo import plan as p
 from facility.demo.entries import EntryWriter
@@ -280,7 +281,17 @@ def load(
     progress(f"Loading the demo facility: {cat.FACILITY}")
     with transaction.atomic():
         builder.setup()
+        staff = builder.users[cat.STAFF]
+        first_day = timezone.localdate(builder.now) - dt.timedelta(days=history_days + 1)
+        with acting_as(staff):
+            tariffs = billing_data.add_tariffs(by=staff, valid_from=first_day)
+        progress(f"  tariffs: {tariffs} (invented rates)")
         builder.timeline()
+        with acting_as(staff):
+            statements = billing_data.draft_past_months(
+                by=staff, first_day=first_day, now=builder.now
+            )
+        progress(f"  statements: {statements['drafted']} drafted (finalise them on the page)")
         if image_sessions:
             with acting_as(builder.users[cat.STAFF]):
                 made = add_images(by=builder.users[cat.STAFF], sessions=image_sessions)
