@@ -50,6 +50,17 @@ class Command(BaseCommand):
         )
 
     def handle(self, *args, **options) -> None:
+        # The demo's invented people have no real mailboxes: their messages stay in the app
+        # instead of scrolling past as e-mails on the console (the analysis that sends them runs
+        # when the load commits, inside this call).
+        mail_backend = settings.EMAIL_BACKEND
+        settings.EMAIL_BACKEND = "django.core.mail.backends.dummy.EmailBackend"
+        try:
+            self._handle(**options)
+        finally:
+            settings.EMAIL_BACKEND = mail_backend
+
+    def _handle(self, **options) -> None:
         if options["print_password"]:
             self.stdout.write(catalogue.DEMO_PASSWORD)
             return
