@@ -1,6 +1,6 @@
 """URLs of the REST API, mounted at /api/v1/ (namespace "api").
 
-Each resource registers its viewset here; billing endpoints slot in the same way. Anything else under /api/v1/ answers a JSON 404, never an HTML page.
+Each resource registers its viewset here. Anything else under /api/v1/ answers a JSON 404, never an HTML page.
 """
 
 from __future__ import annotations
@@ -11,6 +11,7 @@ from drf_spectacular.views import SpectacularAPIView, SpectacularSwaggerView
 from rest_framework.routers import SimpleRouter
 
 from api.views import (
+    billing,
     bookings,
     conditions,
     flags,
@@ -48,6 +49,11 @@ router.register(
 )
 router.register(f"{UPKEEP_INSTRUMENT}/limits", upkeep.LimitViewSet, basename="limit")
 router.register("upkeep/alerts", upkeep.AlertViewSet, basename="alert")
+# Billing: statements (scoped by billing's visible_to), lines, adjustments, the usage report.
+router.register("billing/statements", billing.StatementViewSet, basename="statement")
+router.register("billing/lines", billing.LineViewSet, basename="line")
+router.register("billing/adjustments", billing.AdjustmentViewSet, basename="adjustment")
+router.register("billing/usage", billing.UsageViewSet, basename="usage")
 
 urlpatterns = [
     # The schema changes only with a deploy; generating it takes most of a second.

@@ -24,11 +24,7 @@ from api.serializers.conditions import ConditionsSearchIn, ConditionsSearchOut
 from api.views.base import ApiViewSet
 from api.views.micrographs import FilesAnyway
 from facility.finder.criteria import make_criteria
-from facility.finder.queries import Hit, Result, search
-
-# The finder's thumbnail rule (its hits' rule: staff, own groups, groups that share details). It
-# lives in the finder's views module; facility/finder/queries.py would be its better home.
-from facility.finder.views import micrographs_shown_to
+from facility.finder.queries import Hit, Result, micrographs_shown_to, search
 from facility.logbook.downloads import thumbnail_response
 from facility.logbook.models import InstrumentSession, Micrograph
 from facility.logbook.queries import visible_to as sessions_visible_to

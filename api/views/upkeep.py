@@ -9,7 +9,6 @@ from __future__ import annotations
 
 from typing import Any
 
-import django_filters as df
 from django.shortcuts import get_object_or_404
 from django_filters.rest_framework import DjangoFilterBackend
 from drf_spectacular.types import OpenApiTypes
@@ -19,6 +18,7 @@ from rest_framework.decorators import action
 from rest_framework.request import Request
 from rest_framework.response import Response
 
+from api.filters import AlertFilter
 from api.serializers.upkeep import (
     AlertOut,
     InstrumentCountersOut,
@@ -33,7 +33,7 @@ from api.serializers.upkeep import (
 from api.views.base import ApiViewSet, visible_or_404
 from facility.instruments.models import Instrument, Pump
 from facility.upkeep import queries, services
-from facility.upkeep.models import Alert, AlertLevel, Limit, MeterReading, ServiceEvent
+from facility.upkeep.models import Alert, Limit, MeterReading, ServiceEvent
 
 CODE = OpenApiParameter("code", OpenApiTypes.STR, OpenApiParameter.PATH, description="Instrument.")
 
@@ -209,15 +209,6 @@ class LimitViewSet(OfInstrument):
             note=data.get("note", ""),
         )
         return Response(self.out(LimitOut, limit))
-
-
-class AlertFilter(df.FilterSet):
-    instrument = df.CharFilter(field_name="instrument__code", help_text="Instrument code.")
-    level = df.MultipleChoiceFilter(choices=AlertLevel.choices)
-
-    class Meta:
-        model = Alert
-        fields: list[str] = []
 
 
 @extend_schema_view(

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import pytest
 from django.db import IntegrityError
 from rest_framework.test import APIClient
 
@@ -88,3 +89,21 @@ def test_options_points_to_the_schema(world):
     answer = world.client_for("researcher_a").options("/api/v1/sessions/")
     assert answer.status_code == 200
     assert answer.json()["schema"] == "/api/v1/schema/"
+
+
+@pytest.mark.parametrize(
+    "url",
+    [
+        "/api/v1/flags/?session=-7.2e191",
+        "/api/v1/micrographs/?session=1e30",
+        "/api/v1/sessions/?group=9223372036854775808",
+        "/api/v1/billing/lines/?statement=0",
+        "/api/v1/billing/statements/?group=2.5",
+    ],
+)
+def test_an_id_filter_out_of_range_is_400_not_a_database_error(world, url):
+    # 2**63 is one past the largest signed 64-bit integer SQLite stores (sqlite.org/datatype3).
+    response = world.client_for("researcher_a").get(url)
+    assert response.status_code == 400
+    name = url.split("?")[1].split("=")[0]
+    assert name in shape(response)["fields"]

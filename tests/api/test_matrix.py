@@ -17,6 +17,8 @@ import pytest
 from django.core.files.uploadedfile import SimpleUploadedFile
 from django.db import transaction
 
+from facility.billing import services as billing
+from facility.billing.models import Charge, Statement
 from facility.upkeep.models import Alert
 from tests.api.conftest import NOW, ROLES, World, small_tiff
 from tests.api.endpoints import resolver_endpoints, schema_operations
@@ -78,6 +80,25 @@ def staff_only(status: int) -> dict[str, int]:
 
 
 STAFF_READS = staff_only(200)
+
+
+BS = "/api/v1/billing/statements/"
+LEADER_READS = cells(404, 404, 200, 404, 200)
+
+
+def _adjustment(w: World) -> Charge:
+    """A draft February statement of group A's account, holding one adjustment line."""
+    return billing.add_adjustment(
+        account=w.a.account,
+        amount="-5.00",
+        reason="matrix",
+        by=w.facility.manager,
+        month=dt.date(2031, 2, 1),
+    )
+
+
+def _statement(w: World) -> Statement:
+    return _adjustment(w).statement
 
 
 def _alert(w: World) -> Alert:
@@ -269,6 +290,42 @@ MATRIX: dict[tuple[str, str], tuple[Callable[[World], Call], dict[str, int]]] = 
     ("GET", "/api/v1/upkeep/alerts/"): (lambda w: Call("/api/v1/upkeep/alerts/"), STAFF_READS),
     ("POST", "/api/v1/upkeep/alerts/{id}/acknowledge/"): (
         lambda w: Call(f"/api/v1/upkeep/alerts/{_alert(w).pk}/acknowledge/"),
+        STAFF_READS,
+    ),
+    # Billing: statements are seen by staff and the group's leader (researchers and the client
+    # lead no group); writes are staff's, the leader who sees the row gets 403.
+    ("GET", BS): (lambda w: Call(BS), EVERYONE_READS),
+    ("GET", BS + "{id}/"): (lambda w: Call(f"{BS}{_statement(w).pk}/"), LEADER_READS),
+    ("GET", BS + "{id}/lines/"): (lambda w: Call(f"{BS}{_statement(w).pk}/lines/"), LEADER_READS),
+    ("GET", BS + "{id}/csv/"): (lambda w: Call(f"{BS}{_statement(w).pk}/csv/"), LEADER_READS),
+    ("GET", BS + "{id}/pdf/"): (lambda w: Call(f"{BS}{_statement(w).pk}/pdf/"), LEADER_READS),
+    ("POST", BS + "{id}/finalise/"): (
+        lambda w: Call(f"{BS}{_statement(w).pk}/finalise/"),
+        cells(404, 404, 403, 404, 200),
+    ),
+    ("POST", BS + "draft-month/"): (
+        lambda w: Call(f"{BS}draft-month/", {"month": "2031-02"}),
+        staff_only(200),
+    ),
+    ("GET", "/api/v1/billing/lines/"): (lambda w: Call("/api/v1/billing/lines/"), EVERYONE_READS),
+    ("POST", "/api/v1/billing/adjustments/"): (
+        lambda w: Call(
+            "/api/v1/billing/adjustments/",
+            {"account": w.a.account.code, "amount": "-12.50", "reason": "x", "month": "2031-03"},
+        ),
+        # Researcher A sees the account but may not adjust; B and the client do not see it.
+        cells(403, 404, 403, 404, 201),
+    ),
+    ("DELETE", "/api/v1/billing/adjustments/{id}/"): (
+        lambda w: Call(f"/api/v1/billing/adjustments/{_adjustment(w).pk}/"),
+        cells(404, 404, 403, 404, 204),
+    ),
+    ("GET", "/api/v1/billing/usage/{month}/"): (
+        lambda w: Call("/api/v1/billing/usage/2031-02/"),
+        STAFF_READS,
+    ),
+    ("GET", "/api/v1/billing/usage/{month}/csv/"): (
+        lambda w: Call("/api/v1/billing/usage/2031-02/csv/"),
         STAFF_READS,
     ),
     # Tokens are managed with the login session only: any token gets 403 here.

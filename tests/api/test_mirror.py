@@ -16,6 +16,8 @@ import pytest
 from django.urls import resolve
 from django.utils import timezone
 
+from facility.billing import services as billing
+from facility.billing.models import Statement
 from facility.logbook.models import Flag
 from tests import factories as f
 from tests.api.conftest import NOW, Side, World
@@ -45,6 +47,20 @@ def _extra_rows(side: Side) -> None:
         dismissed_by=side.user,
         dismiss_reason="intended contrast",
     )
+
+
+def _billing_rows(world: World) -> None:
+    """Each side's March draft statement with the line of its closed session (_extra_rows)."""
+    for side in (world.a, world.b):
+        billing.add_tariff(
+            instrument=side.instrument,
+            rate_category="internal",
+            purpose="own_use",
+            hourly_rate="80.00",
+            valid_from=dt.date(2031, 1, 1),
+            by=world.facility.manager,
+        )
+        assert billing.draft_statement(account=side.account, month=dt.date(2031, 3, 1))
 
 
 def fingerprints(side: Side) -> list[str]:
@@ -87,7 +103,14 @@ def values_for(name: str, schema: dict, world: World) -> list[str]:
         "purpose": ["own_use"],
         "state": ["requested", "done", "pending"],
         "level": ["warn", "limit"],
+        "kind": ["use", "adjustment"],
+        "month": ["2031-02", "2031-03"],
     }
+    if name == "statement":
+        return [
+            Statement.objects.filter(account=side.account).values_list("pk", flat=True).first()
+            for side in (a, b)
+        ]
     kind = schema.get("items", schema)
     if "enum" in kind:
         chosen = [v for v in by_name.get(name, []) if v in kind["enum"]]
@@ -146,12 +169,17 @@ SHARED = {"/api/v1/instruments/"}
 PERSONAL = {"/api/v1/tokens/"}
 # Staff-only lists (upkeep): no one else gets a row, whatever they ask — a 403 every time.
 STAFF_ONLY = {"/api/v1/upkeep/alerts/"}
+# Lists of rows only a group's leader (and staff) read, such as statements: a researcher sees
+# neither side's, the leader their own group's — with every variation.
+LEADERS = {"/api/v1/billing/statements/"}
 
 
 @pytest.mark.parametrize("path", list_operations())
 def test_lists_never_show_the_other_group(world, path):
     _extra_rows(world.a)
     _extra_rows(world.b)
+    if path.startswith("/api/v1/billing/"):
+        _billing_rows(world)
     operation = schema_operations()[("GET", path)]
     if path in STAFF_ONLY:
         for role, *_ in CASES:
@@ -165,6 +193,9 @@ def test_lists_never_show_the_other_group(world, path):
         marks = [m for side in forbidden for m in fingerprints(getattr(world, side))]
         if path in PERSONAL and own and getattr(world, own).user != world.user(role):
             own = None
+        if path in LEADERS:
+            own = own if role == "leader_a" else None
+            full = full or role == "leader_a"
         own_marks = fingerprints(getattr(world, own)) if own else []
         saw_own = False
         tried = variations(path, operation, world) if full else [{"page_size": 1}]

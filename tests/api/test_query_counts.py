@@ -8,12 +8,14 @@ from __future__ import annotations
 
 import datetime as dt
 import itertools
+from decimal import Decimal
 
 import pytest
 from django.utils import timezone
 from rest_framework.test import APIClient
 
 from api import tokens
+from facility.billing.models import Charge, Statement
 from facility.logbook.models import Flag, Micrograph
 from facility.upkeep.models import Alert
 from tests import factories as f
@@ -77,8 +79,32 @@ def _alert(fa):
     )
 
 
+def _statement(fa):
+    n = next(_counter)
+    return Statement.objects.create(
+        account=f.AccountFactory(group=fa.group_a), month=dt.date(2000 + n % 50, 1 + n % 12, 1)
+    )
+
+
+def _line(fa):
+    # An adjustment naming researcher A as its user: one of "my costs".
+    return Charge.objects.create(
+        statement=_statement(fa),
+        position=1,
+        kind="adjustment",
+        currency="EUR",
+        amount=Decimal("-1.00"),
+        description="Adjustment: goodwill",
+        reason="goodwill",
+        created_by=fa.manager,
+        user=fa.researcher_a,
+    )
+
+
 SEEDERS = {
     "/api/v1/accounts/": lambda fa: f.AccountFactory(group=fa.group_a),
+    "/api/v1/billing/lines/": _line,
+    "/api/v1/billing/statements/": _statement,
     "/api/v1/bookings/": _booking,
     "/api/v1/flags/": _flag,
     "/api/v1/instruments/": lambda fa: f.InstrumentFactory(),
@@ -89,12 +115,15 @@ SEEDERS = {
     "/api/v1/upkeep/alerts/": _alert,
 }
 # Who asks, where not researcher A: staff-only lists are read by the facility manager.
-CALLERS = {"/api/v1/upkeep/alerts/": "manager"}
+CALLERS = {"/api/v1/upkeep/alerts/": "manager", "/api/v1/billing/statements/": "leader_a"}
 
 # Session + user (auth), the caller's group ids (visible_to), the page itself. Accounts, the
 # instrument catalogue and tokens need no separate group lookup (a subquery, or none).
 PINNED = {
     "/api/v1/accounts/": 3,
+    # Billing also reads the caller's profile (finance sees all) and the groups they lead.
+    "/api/v1/billing/lines/": 5,
+    "/api/v1/billing/statements/": 5,
     "/api/v1/bookings/": 4,
     "/api/v1/flags/": 4,
     "/api/v1/instruments/": 3,

@@ -64,9 +64,10 @@ def test_api_conforms_to_its_schema(case, world, bearer):
     case.call_and_validate(headers=bearer, checks=CHECKS)
 
 
-# Upkeep answers everyone but staff with a 403, so the run above never gets past the door there.
-# The same checks as staff, on the facility's SEM (a generated code would only meet 404s).
-upkeep = schema.include(path_regex="^/api/v1/upkeep/")
+# Upkeep and billing's writes answer everyone but staff with a 403, so the run above never gets
+# past the door there. The same checks as staff, on the facility's SEM (a generated instrument
+# code would only meet 404s).
+staff_only = schema.include(path_regex="^/api/v1/(upkeep|billing)/")
 
 
 @pytest.fixture
@@ -77,14 +78,14 @@ def staff_bearer(world) -> dict[str, str]:
     return {"Authorization": f"Bearer {issued.secret}"}
 
 
-@upkeep.parametrize()
+@staff_only.parametrize()
 @settings(
     max_examples=MAX_EXAMPLES,
     deadline=None,
     derandomize=True,
     suppress_health_check=list(HealthCheck),
 )
-def test_upkeep_conforms_as_staff(case, world, staff_bearer):
+def test_staff_areas_conform_as_staff(case, world, staff_bearer):
     if "code" in (case.path_parameters or {}):
         case.path_parameters["code"] = world.facility.sem.code
     case.call_and_validate(headers=staff_bearer, checks=CHECKS)
