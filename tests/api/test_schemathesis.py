@@ -37,6 +37,22 @@ DEEP = os.environ.get("BEAMLEDGER_SCHEMATHESIS_DEEP") == "1"
 MAX_EXAMPLES = 25 if DEEP else 4
 
 
+@pytest.fixture(autouse=True)
+def _keep_the_test_connection():
+    """The WSGI app is called directly here, not through Django's test client, so Django's
+    end-of-request handler would close the database connection — on PostgreSQL that is the
+    connection holding the test's transaction. The test client disconnects the handler for the
+    same reason; do the same."""
+    from django.core.signals import request_finished, request_started
+    from django.db import close_old_connections
+
+    request_started.disconnect(close_old_connections)
+    request_finished.disconnect(close_old_connections)
+    yield
+    request_started.connect(close_old_connections)
+    request_finished.connect(close_old_connections)
+
+
 @pytest.fixture
 def bearer(world) -> dict[str, str]:
     issued = tokens.create_token(
