@@ -18,6 +18,27 @@ from facility.people.models import RateCategory, Role
 REQUIRE_SERVICES = os.environ.get("BEAMLEDGER_REQUIRE_SERVICES") == "1"
 
 
+def _single_threaded_live_server() -> None:
+    """Serve the live test server from one thread.
+
+    With SQLite the test database is shared in memory and the live server reuses the test's own
+    connection; Django's threaded server would then use that one connection from several threads
+    at once (a browser loads a page's charts in parallel) and can hang. One thread answers the
+    requests in turn, which is all a test needs.
+    """
+    from django.core.servers.basehttp import WSGIServer
+    from django.test import testcases
+
+    class OneThreadServer(WSGIServer):
+        def __init__(self, *args, connections_override=None, **kwargs):
+            super().__init__(*args, **kwargs)
+
+    testcases.LiveServerThread.server_class = OneThreadServer
+
+
+_single_threaded_live_server()
+
+
 def _redis_reachable(url: str) -> bool:
     parsed = urlparse(url)
     try:
