@@ -27,28 +27,33 @@ Evidence (all numbers in :attr:`ChargingResult.evidence`):
   their height over the lines two away (a probe-blurred thin line lifts its neighbours too):
   ``streak_rows``, the same down the columns ``streak_columns`` (isotropic specimen content gives
   both alike) and their ratio ``streak_ratio``.
-* **Tails** — ``tail_asymmetry``: along every line, background runs between bright features
-  (Otsu's threshold) are compared at their two ends; the end just downstream of a feature carries
-  its tail, the other does not, and on a mirror-symmetric specimen the two are alike
-  (``tail_asymmetry_columns``, the same down the columns, is reported for comparison).
-* **Torn lines and slips** — for the lines that fit their neighbours worst, the horizontal shift
-  of each 64-pixel segment that fits best: a segment that fits the mean of its neighbours only
-  once shifted, or fits the line above and the line below at shifts that do not cancel (a
-  sloping edge gives s_up = −s_down), is torn (``torn_segments``, per 256 lines); the same on
-  whole lines gives ``slip_gain`` and ``line_tear_ratio`` (the drift slips of shear).
+* **Tails** — the two sides of bright features along the lines compared
+  (:mod:`.charging_tails`): ``tail_level_near``, ``tail_level_far``, ``tail_edge_votes`` and
+  their sum on one scale, ``tail_sum``.
+* **Torn lines and slips** — lines that fit their neighbours only once shifted
+  (:mod:`.charging_shifts`): ``torn_segments``, ``slip_gain``, ``line_tear_ratio`` from a search
+  over whole-pixel shifts, and ``shift_ratio`` (whole lines) and ``shift_run_ratio`` (lines torn
+  from some point on) from sub-pixel shifts, each against the same measured down the columns.
 
 Each piece is turned into a partial score in [0, 1] by a linear ramp between the level that
 clean synthetic images (all scenes, 8 and 16 bit, σ 0.7–7 px, doses 40–1000 e/px, astigmatism up
-to 3, offset and gain up to 1.5) stay below and the level of a plainly visible artefact (ramps
-in :data:`RAMPS`, set on a seeded synthetic set); the clipping ramps are multiplied, since
-clipping alone is also what a high contrast setting gives. The ``score`` combines the partial
-scores like independent detections, 1 − Π(1 − sᵢ), and the partial scores are kept in the
-evidence (``partial_*``); ``findings`` names those ≥ :data:`DEFAULT_CHARGING_THRESHOLD`, the
-level for the ``charging`` flag.
+to 3, offset and gain) stay below and the level of a plainly visible artefact (:data:`RAMPS`,
+set on seeded development sets — 432 clean and 420 charged images made like the test set of
+``tests/micrograph/test_charging.py`` with other seeds (``benchmarks/charging_devset.py``),
+the same 432 cases drawn by an earlier revision of the generator, and 336 clean and 80 charged
+made like the set of ``tests/micrograph/test_accuracy.py`` with other seeds — never on the test
+sets); the clipping ramps are multiplied, since clipping alone is also what a high contrast
+setting gives.
+The ``score`` combines the partial scores like independent detections, 1 − Π(1 − sᵢ), and the
+partial scores are kept in the evidence (``partial_*``); ``findings`` names those ≥
+:data:`DEFAULT_CHARGING_THRESHOLD`, the level for the ``charging`` flag.
 
-Known limits: a smooth drift (shear) without slips, and tails on scenes with few or very large
-features, are often missed; clipping from charging cannot be told from clipping by a contrast
-setting that already saturates much of the image.
+Known limits (figures in ``tests/micrograph/test_charging.py``): tails are found on fewer than
+half of the charged images: on scenes made of a few large regions and under heavy blur they
+cannot be told from the specimen's own asymmetries at a low false-alarm rate; a uniform drift
+(shear) is an affine change of the specimen and cannot be seen, only its slips; tears and slips
+of a few pixels under a probe of σ ≳ 4 px are mostly missed; clipping from charging cannot be
+told from clipping by a contrast setting that already saturates much of the image.
 """
 
 from __future__ import annotations
@@ -57,27 +62,32 @@ import math
 from dataclasses import dataclass, field
 
 import numpy as np
-from scipy import ndimage
+
+from .charging_shifts import shift_evidence, tear_search_evidence
+from .charging_tails import tail_evidence
 
 DEFAULT_CHARGING_THRESHOLD = 0.5
 
 STRIP = 32  # strip width (px) for the line-mean statistics
-SEGMENT = 64  # segment width (px) for the tear search
-MAX_SHIFT = 12  # largest tear searched for (px)
 
-# (evidence key, clean level, charged level): partial score = clip((v − lo)/(hi − lo), 0, 1)
+# evidence key → (clean level, charged level): partial score = clip((v − lo)/(hi − lo), 0, 1).
+# Set on the development sets (see the module docstring) so that the flag is raised on about
+# 2 % of their clean images; the whole-line and partial-line sub-pixel shifts only count when
+# they are strong, since below that the whole-pixel search already finds what they find.
 RAMPS: dict[str, tuple[float, float]] = {
     "top_spike_ratio": (3.0, 8.0),
     "clipped_fraction": (5e-4, 2e-3),
     "clip_density": (0.6, 0.8),
     "clip_comet": (0.04, 0.09),
     "top_gap": (0.4, 0.5),
-    "line_jump": (4.2, 6.0),
-    "streak_rows": (0.08, 0.16),
-    "tail_asymmetry": (0.02, 0.035),
+    "line_jump": (3.5, 4.3),
+    "streak_rows": (0.06, 0.11),
+    "tail_sum": (4.7, 5.5),
     "torn_segments": (1.0, 2.5),
+    "shift_run_ratio": (4.2, 5.4),
     "slip_gain": (1.35, 1.8),
-    "line_tear_ratio": (1.45, 1.75),
+    "line_tear_ratio": (1.33, 1.5),
+    "shift_ratio": (1.9, 2.3),
 }
 
 
@@ -114,10 +124,9 @@ def measure_charging(image: np.ndarray, *, bit_depth: int | None = None) -> Char
     ev["streak_rows"] = _streak_energy(rows)
     ev["streak_columns"] = _streak_energy(cols)
     ev["streak_ratio"] = (ev["streak_rows"] + 0.01) / (ev["streak_columns"] + 0.01)
-    # about 200 lines each way are plenty for the tail statistics and keep the cost bounded
-    ev["tail_asymmetry"] = _tail_asymmetry(f[:: max(2, f.shape[0] // 200)])
-    ev["tail_asymmetry_columns"] = _tail_asymmetry(f[:, :: max(2, f.shape[1] // 200)].T)
-    ev.update(_tears(f))
+    ev.update(tail_evidence(f))
+    ev.update(tear_search_evidence(f))
+    ev.update(shift_evidence(f))
 
     partial = _partial_scores(ev)
     score = 1.0 - math.prod(1.0 - p for p in partial.values())
@@ -143,10 +152,17 @@ def _partial_scores(ev: dict[str, float]) -> dict[str, float]:
         "clipped": clip,
         "line_jumps": _ramp(ev["line_jump"], "line_jump"),
         "streaks": _ramp(ev["streak_rows"], "streak_rows"),
-        "tails": _ramp(abs(ev["tail_asymmetry"]), "tail_asymmetry"),
-        "torn_lines": _ramp(ev["torn_segments"], "torn_segments"),
+        "tails": _ramp(ev["tail_sum"], "tail_sum"),
+        # part of a line displaced (from some point on)
+        "torn_lines": max(
+            _ramp(ev["torn_segments"], "torn_segments"),
+            _ramp(ev["shift_run_ratio"], "shift_run_ratio"),
+        ),
+        # whole lines displaced (the slips of a drifting field, whole torn lines)
         "slips": max(
-            _ramp(ev["slip_gain"], "slip_gain"), _ramp(ev["line_tear_ratio"], "line_tear_ratio")
+            _ramp(ev["slip_gain"], "slip_gain"),
+            _ramp(ev["line_tear_ratio"], "line_tear_ratio"),
+            _ramp(ev["shift_ratio"], "shift_ratio"),
         ),
     }
 
@@ -304,143 +320,4 @@ def _streak_energy(lines: np.ndarray) -> float:
     return float(np.mean(np.maximum(z - 3.0, 0.0) ** 2))
 
 
-def _otsu(values: np.ndarray) -> float:
-    """Otsu's threshold (Otsu 1979, between-class variance) on a 128-bin histogram."""
-    hist, edges = np.histogram(values, bins=128)
-    centres = 0.5 * (edges[:-1] + edges[1:])
-    w = np.cumsum(hist).astype(np.float64)
-    m = np.cumsum(hist * centres)
-    between = (m[-1] * w - m * w[-1]) ** 2 / (w * (w[-1] - w) + 1e-12)
-    return float(centres[np.argmax(between[:-1])])
-
-
-def _tail_asymmetry(f: np.ndarray) -> float:
-    """The run-end asymmetry 10 px from the features, if it fades from 2 px to 10 px.
-
-    A tail lasts well beyond 10 px but fades away from its feature; the slope of a strongly
-    blurred edge does not reach so far, and a brightness gradient across the background grows
-    with the distance instead.
-    """
-    near = _dark_run_asymmetry(f, gap=2)
-    far = _dark_run_asymmetry(f, gap=10)
-    if near * far <= 0 or abs(far) > abs(near):
-        return 0.0
-    return far
-
-
-def _dark_run_asymmetry(f: np.ndarray, gap: int = 2, window: int = 12) -> float:
-    """Brightness at the upstream end minus the downstream end of background runs / contrast.
-
-    Background (dark) runs along each line between bright features (Otsu threshold): the end
-    just after a feature carries its tail, the end just before the next feature does not; on a
-    mirror-symmetric specimen the two ends are alike. 25 %-trimmed mean over runs, shrunk towards
-    0 when there are few runs (n / (n + 100)), since then single structures dominate.
-    """
-    sub = f[::2, ::2].ravel()
-    thr = _otsu(sub)
-    dark = sub <= thr
-    if dark.all() or not dark.any():
-        return 0.0
-    contrast = float(sub[~dark].mean()) - float(sub[dark].mean())
-    if contrast <= 0:
-        return 0.0
-    h, w = f.shape
-    edge = np.zeros((h, w + 2), dtype=np.int8)
-    edge[:, 1:-1] = f <= thr
-    d = np.diff(edge, axis=1)
-    rs, start = np.nonzero(d == 1)
-    _, end = np.nonzero(d == -1)  # dark runs cover [start, end)
-    ok = (end - start >= 2 * (gap + window)) & (start > 0) & (end < w)
-    n = int(np.count_nonzero(ok))
-    if n < 10:
-        return 0.0
-    r, s, e = rs[ok], start[ok], end[ok]
-    csum = np.zeros((h, w + 1))
-    np.cumsum(f, axis=1, dtype=np.float64, out=csum[:, 1:])
-    after = csum[r, s + gap + window] - csum[r, s + gap]
-    before = csum[r, e - gap] - csum[r, e - gap - window]
-    diff = np.sort(after - before) / window
-    k = n // 4
-    return float(diff[k : n - k].mean()) / contrast * n / (n + 100.0)
-
-
-def _tears(f: np.ndarray) -> dict[str, float]:
-    h, w = f.shape
-    nseg = (w - 2 * MAX_SHIFT) // SEGMENT
-    if h < 8 or nseg < 1:
-        return {"torn_segments": 0.0, "slip_gain": 1.0, "line_tear_ratio": 1.0}
-    half = f[:, ::2]  # every second column is enough to rank the lines
-    step_up = np.diff(half, axis=0)
-    curv = step_up[1:] - step_up[:-1]  # line − mean of neighbours, times −2
-    misfit = 0.25 * np.mean(curv * curv, axis=1, dtype=np.float64)
-    local = ndimage.median_filter(misfit, size=9, mode="nearest") + 1e-12
-    n_cand = int(min(40, max(8, h // 8)))
-    cand = np.argsort(misfit / local)[-n_cand:] + 1
-    typical = float(np.median(misfit)) + 1e-12
-    up_typ = float(np.median(np.mean(step_up * step_up, axis=1, dtype=np.float64))) + 1e-12
-
-    x0, x1 = MAX_SHIFT, MAX_SHIFT + nseg * SEGMENT
-    line = f[cand].astype(np.float64)
-    above = f[cand - 1, x0:x1].astype(np.float64)
-    below = f[cand + 1, x0:x1].astype(np.float64)
-    both = 0.5 * (above + below)
-    shifts = np.arange(-MAX_SHIFT, MAX_SHIFT + 1)
-    shape = (cand.size, nseg, SEGMENT)
-    cost_up = np.empty((shifts.size, cand.size, nseg))
-    cost_dn = np.empty_like(cost_up)
-    cost_both = np.empty_like(cost_up)
-    for i, s in enumerate(shifts):
-        moved = line[:, x0 + s : x1 + s]
-        cost_up[i] = ((moved - above) ** 2).reshape(shape).mean(axis=2)
-        cost_dn[i] = ((moved - below) ** 2).reshape(shape).mean(axis=2)
-        cost_both[i] = ((moved - both) ** 2).reshape(shape).mean(axis=2)
-    zero = MAX_SHIFT
-    far = np.abs(shifts) >= 1
-    best_both = cost_both[far].min(axis=0)
-    # a single torn line: it fits the mean of its neighbours only once shifted back
-    single = (cost_both[zero] > 3.0 * best_both) & (cost_both[zero] > 2.0 * typical)
-    single &= best_both < 2.0 * typical
-    # the first line of a torn band or a slip: the fits up and down need shifts that do not
-    # cancel (a sloping edge gives s_up = −s_down)
-    s_up = shifts[np.argmin(cost_up, axis=0)]
-    s_dn = shifts[np.argmin(cost_dn, axis=0)]
-    # a best fit at the edge of the search (a near-horizontal edge) is no fit at all
-    inside = (np.abs(s_up) < MAX_SHIFT) & (np.abs(s_dn) < MAX_SHIFT)
-    best_up = cost_up.min(axis=0)
-    best_dn = cost_dn.min(axis=0)
-    pair = inside & (np.abs(s_up + s_dn) >= 2) & (cost_up[zero] > 3.0 * best_up)
-    pair &= (best_up < 2.0 * up_typ) & (best_dn < 2.0 * up_typ) & (cost_up[zero] > 2.0 * up_typ)
-    torn = single | pair
-    # whole lines: summing the segment costs lets a slip show where only a few segments carry
-    # structure (an edge crossing the line); content slopes cancel over the width
-    line_up, line_dn = cost_up.sum(axis=2), cost_dn.sum(axis=2)
-    line_both = cost_both.sum(axis=2)
-    k = np.arange(cand.size)
-    su, sd = np.argmin(line_up, axis=0), np.argmin(line_dn, axis=0)
-    gain_up = line_up[zero] / (line_up[su, k] + 1e-12)
-    gain_dn = line_dn[zero] / (line_dn[sd, k] + 1e-12)
-    busy = line_both[zero] > 1.2 * typical * nseg  # flat (clipped, featureless) lines say nothing
-    cancel = np.abs(shifts[su] + shifts[sd]) < 2
-    # both fits must be definite: a flat-bottomed cost (a near-horizontal edge) fixes no shift
-    cancel |= ~_definite(line_up, su) | ~_definite(line_dn, sd)
-    slip_gain = np.where(busy & ~cancel, np.maximum(gain_up, gain_dn), 1.0)
-    line_tear = np.where(busy, line_both[zero] / (line_both[far].min(axis=0) + 1e-12), 1.0)
-    return {
-        "torn_segments": float(np.count_nonzero(torn)) * 256.0 / h,
-        "slip_gain": float(slip_gain.max()),
-        "line_tear_ratio": float(line_tear.max()),
-    }
-
-
-def _definite(cost: np.ndarray, best: np.ndarray, step: int = 2, rise: float = 1.25) -> np.ndarray:
-    """Whether the cost at ``best`` ± ``step`` shifts is clearly above the minimum (per column)."""
-    n = cost.shape[0]
-    k = np.arange(cost.shape[1])
-    lo, hi = best - step, best + step
-    inner = (lo >= 0) & (hi < n)
-    left = cost[np.clip(lo, 0, n - 1), k]
-    right = cost[np.clip(hi, 0, n - 1), k]
-    return inner & (np.minimum(left, right) > rise * cost[best, k])
-
-
-__all__ = ["DEFAULT_CHARGING_THRESHOLD", "ChargingResult", "measure_charging"]
+__all__ = ["DEFAULT_CHARGING_THRESHOLD", "RAMPS", "ChargingResult", "measure_charging"]

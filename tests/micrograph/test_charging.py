@@ -9,6 +9,16 @@ up (some clipping), edge scenes with strong horizontal edges at a sharp probe, a
 "Charged" means strength ≥ VISIBLE_STRENGTH (0.3): below that the artefacts are faint enough that
 a person would often not call the image charged (our judgement from looking at the generated
 images); the weak ones are made and reported but not counted.
+
+The detector's ramps were set on development sets made the same way with other seeds (432 clean
+from seed 20000 and 60 per kind from seed 30000, ``benchmarks/charging_devset.py``; and 336
+clean and 80 charged made like ``test_accuracy.py``'s set from seeds 777000 and 888000), never
+on this set. Figures at the time of writing, development set / this test set: clean flagged
+1.9 % / 0 % (second development set 2.4 %; the horizontal-edge scenes are the hard group);
+detected at strength ≥ 0.3: clipped 0.97 / 0.94, line jumps 1.00 / 0.94, streaks 0.98 / 1.00,
+tails 0.47 / 0.39, torn lines 0.83 / 0.94, shear 0.85 / 0.78, nonsense 1.00 / 1.00, all kinds
+0.87 / 0.86 — short of the issue's 90 % overall, because tails and slips under heavy blur are
+missed (see ``facility/micrograph/charging.py``, "Known limits").
 """
 
 from __future__ import annotations
@@ -24,10 +34,11 @@ from skimage.filters import threshold_otsu
 from facility.micrograph.charging import (
     DEFAULT_CHARGING_THRESHOLD,
     ChargingResult,
-    _otsu,
     _trimmed_mean,
     measure_charging,
 )
+from facility.micrograph.charging_shifts import _shift_sums
+from facility.micrograph.charging_tails import otsu_threshold, tail_evidence
 from facility.micrograph.synth import make_micrograph
 from facility.micrograph.synth.charging import (
     KINDS,
@@ -150,17 +161,19 @@ def test_detection_on_charged_images(charged_results) -> None:
     weak = [(k, s, r) for k, s, _, r in charged_results if s < VISIBLE_STRENGTH]
     n_weak = sum(_flagged(r) for _, _, r in weak)
     print(f"  weak (strength < {VISIBLE_STRENGTH}, not counted): {n_weak}/{len(weak)} detected")
-    # the issue's target (≥ 90 %) is met for these kinds ...
-    for kind in ("line_jumps", "streaks", "nonsense"):
+    # the issue's target (≥ 90 %) is met for these kinds (also on the development set) ...
+    for kind in ("clipped", "line_jumps", "streaks", "nonsense"):
         assert rates[kind] >= 0.9, kind
-    # ... and not (or only just) for the others: these floors guard what is reached now (on a
-    # larger development set: clipped 0.88, torn lines 0.87, shear 0.73, tails 0.62)
-    for kind, floor in (("clipped", 0.8), ("torn_lines", 0.75), ("shear", 0.55), ("tails", 0.4)):
+    # ... and not for the others: these floors guard what is reached now, below the figures
+    # of the development set (torn lines 0.83, shear 0.85, tails 0.47) and of this one (0.94,
+    # 0.78, 0.39; 18 images per kind)
+    for kind, floor in (("torn_lines", 0.75), ("shear", 0.65), ("tails", 0.3)):
         assert rates[kind] >= floor, kind
 
 
 @pytest.mark.xfail(
-    strict=True, reason="tails and smooth shear are detected less often (see report)"
+    strict=True,
+    reason="0.86 overall: tails (0.39) and slips under heavy blur (shear 0.78) are missed",
 )
 def test_overall_detection_meets_issue_target(charged_results) -> None:
     visible = [r for _, s, _, r in charged_results if s >= VISIBLE_STRENGTH]
@@ -174,7 +187,7 @@ def test_scores_and_evidence_are_plain_numbers(clean_results, charged_results) -
     keys = set(clean_results[0][2].evidence)
     for name in ("clipped_fraction", "top_spike_ratio", "line_jump", "streak_rows", "streak_ratio"):
         assert name in keys
-    for name in ("tail_asymmetry", "torn_segments", "slip_gain"):
+    for name in ("tail_sum", "torn_segments", "slip_gain", "shift_ratio", "shift_run_ratio"):
         assert name in keys
 
 
@@ -247,7 +260,70 @@ def test_otsu_matches_scikit_image() -> None:
     rng = np.random.default_rng(4)
     values = np.concatenate([rng.normal(60, 8, 5000), rng.normal(150, 15, 2000)])
     width = np.ptp(values) / 128
-    assert abs(_otsu(values) - threshold_otsu(values, nbins=128)) <= width
+    assert abs(otsu_threshold(values) - threshold_otsu(values, nbins=128)) <= width
+
+
+def _textured(seed: int, shape: tuple[int, int] = (256, 256)) -> np.ndarray:
+    """A smooth random texture (Gaussian-filtered noise), contrast about ±30 around 100."""
+    from scipy import ndimage
+
+    noise = np.random.default_rng(seed).normal(size=shape)
+    tex = ndimage.gaussian_filter(noise, 3.0)
+    return 100.0 + 30.0 * tex / tex.std()
+
+
+def test_tail_statistics_do_not_care_for_the_direction_of_time() -> None:
+    # a mirrored image is the same specimen scanned the other way: the unsigned asymmetries must
+    # come out the same (an exact symmetry of the statistics, common practice, no source)
+    img = make_micrograph(
+        seed=21, shape=(256, 272), scene="particles", charging=ChargingSpec(("tails",), 0.6)
+    ).image.astype(np.float32)
+    a, b = tail_evidence(img), tail_evidence(img[:, ::-1])
+    for key in ("tail_level_near", "tail_level_far", "tail_edge_votes", "tail_sum"):
+        assert a[key] == pytest.approx(b[key], rel=1e-6, abs=1e-9), key
+
+
+def test_tail_statistics_follow_the_scan_direction() -> None:
+    # tails made along the rows show in the row statistics; the same image turned by 90° shows
+    # them in the column statistics instead
+    sig = _disc_scene()
+    tailed = apply_charging(sig, ChargingSpec(("tails",), 0.8), np.random.default_rng(5), 400.0)
+    img = np.random.default_rng(6).poisson(tailed).astype(np.float32)
+    rows, turned = tail_evidence(img), tail_evidence(np.ascontiguousarray(img.T))
+    assert rows["tail_sum"] > 2.0 * rows["tail_sum_columns"]
+    assert turned["tail_sum_columns"] == pytest.approx(rows["tail_sum"], rel=1e-6)
+    clean = tail_evidence(np.random.default_rng(6).poisson(sig).astype(np.float32))
+    assert rows["tail_sum"] > 3.0 * clean["tail_sum"]
+
+
+def test_line_shift_matches_scipy_shift() -> None:
+    # one line displaced by a known sub-pixel amount with scipy.ndimage.shift (the reference
+    # interpolation); the Lucas–Kanade estimate against its neighbours, −Σ r·g' / Σ g'², must
+    # recover it (first-order Taylor expansion, Lucas & Kanade 1981)
+    from scipy import ndimage
+
+    img = _textured(8).astype(np.float32)
+    for d in (0.5, -1.0):
+        moved = img.copy()
+        moved[100] = ndimage.shift(img[100].astype(np.float64), d, order=3, mode="nearest")
+        num, den, _ = _shift_sums(moved)
+        est = -num[99].sum() / den[99].sum()  # row 100 is the 99th tested line
+        assert est == pytest.approx(d, abs=0.15 * abs(d))
+        # the lines around it are not displaced
+        assert abs(num[95].sum() / den[95].sum()) < 0.1
+
+
+def test_torn_line_is_found_and_specimen_is_not() -> None:
+    from scipy import ndimage
+
+    img = _textured(9, (256, 320)).astype(np.float32)
+    clean = measure_charging(np.clip(img, 0, 255).astype(np.uint8))
+    torn = img.copy()
+    torn[140, 120:] = ndimage.shift(img[140].astype(np.float64), 3.0, order=1, mode="nearest")[120:]
+    r = measure_charging(np.clip(torn, 0, 255).astype(np.uint8))
+    assert clean.score < DEFAULT_CHARGING_THRESHOLD
+    assert r.score >= DEFAULT_CHARGING_THRESHOLD
+    assert r.evidence["shift_run_ratio"] > 2.0 * max(clean.evidence["shift_run_ratio"], 0.5)
 
 
 # --- behaviour on odd input -----------------------------------------------------------------
