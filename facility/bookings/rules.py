@@ -17,7 +17,7 @@ from facility.people.models import Account
 from facility.people.queries import group_ids_of, is_staff
 
 
-def _fmt(moment: dt.datetime) -> str:
+def format_moment(moment: dt.datetime) -> str:
     return timezone.localtime(moment).strftime("%a %d %b %Y %H:%M")
 
 
@@ -43,7 +43,7 @@ def check_instrument_open(instrument: Instrument) -> None:
 def check_not_past(starts_at: dt.datetime, *, by: AbstractBaseUser, now: dt.datetime) -> None:
     if starts_at < now and not is_staff(by):
         raise Invalid(
-            f"{_fmt(starts_at)} is in the past; choose a start from now on.",
+            f"{format_moment(starts_at)} is in the past; choose a start from now on.",
             fields={"starts_at": ["In the past."]},
         )
 

@@ -26,7 +26,7 @@ def _clash(instrument: Instrument, starts_at: dt.datetime, ends_at: dt.datetime)
     # Names the taken time but never who holds it.
     return Conflict(
         f"{instrument.name} is already booked for part of "
-        f"{rules._fmt(starts_at)}–{timezone.localtime(ends_at):%H:%M}; choose a free slot."
+        f"{rules.format_moment(starts_at)}–{timezone.localtime(ends_at):%H:%M}; choose a free slot."
     )
 
 

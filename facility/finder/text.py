@@ -14,12 +14,10 @@ from django.db.models.expressions import RawSQL
 from django.db.models.functions import Greatest
 
 SPECIMEN_DOCUMENT_SQL = (
-    "(coalesce(logbook_specimen.name, '') || ' ' || coalesce(logbook_specimen.material, '') "
-    "|| ' ' || coalesce(logbook_specimen.preparation, '') || ' ' || "
-    "coalesce(logbook_specimen.notes, ''))"
-).replace("logbook_specimen.", "")
-# The indexed expression names columns without the table; in a query the specimen table is
-# joined under its own name, so qualify it there.
+    "(coalesce(name, '') || ' ' || coalesce(material, '') || ' ' || "
+    "coalesce(preparation, '') || ' ' || coalesce(notes, ''))"
+)
+# In a query the specimen table is joined under its own name, so qualify the columns there.
 _QUALIFIED = SPECIMEN_DOCUMENT_SQL.replace("coalesce(", "coalesce(logbook_specimen.")
 
 WORD = re.compile(r"[a-z0-9]{3,}")

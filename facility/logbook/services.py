@@ -135,7 +135,12 @@ def check_in(
                     idempotency_key=idempotency_key,
                 )
         except IntegrityError as exc:
-            if "session_one_open_per_instrument" in str(exc) or "UNIQUE" in str(exc).upper():
+            # PostgreSQL names the constraint; SQLite names the column it guards.
+            message = str(exc)
+            if (
+                "session_one_open_per_instrument" in message
+                or "logbook_instrumentsession.instrument_id" in message
+            ):
                 raise Conflict(
                     f"{instrument.name} already has an open session; it must be checked out first."
                 ) from None
@@ -153,7 +158,7 @@ def _check_booking_usable(
         raise Conflict(f"That booking is {booking.get_state_display().lower()}; it cannot start.")
     if now < booking.starts_at - EARLY_CHECK_IN:
         raise Conflict(
-            f"The booking starts {booking_rules._fmt(booking.starts_at)}; check in from "
+            f"The booking starts {booking_rules.format_moment(booking.starts_at)}; check in from "
             f"{int(EARLY_CHECK_IN.total_seconds() // 60)} minutes before."
         )
     if now >= booking.ends_at:
