@@ -12,10 +12,16 @@ specimen only). The statistics are our own.
   feature minus the same before one, over the feature contrast;
 * ``tail_edge_votes`` — features whose downstream edge is much softer than their upstream one,
   net, per feature (a tail softens the fall);
-* ``tail_sum`` — the three on one scale (each over its typical level on clean images) and added.
+* ``tail_sum`` — the three on one scale (each over its typical level on clean images) and added;
+* ``tail_features`` — the effective number of bright features, Kish's effective sample size
+  (Σ aᵢ)² / Σ aᵢ² of the feature areas aᵢ (Kish, *Survey Sampling*, 1965; from memory): one
+  feature filling the frame counts 1, a hundred equal particles count 100;
+* ``tail_weighted`` — ``tail_sum`` · √(n / (n + ``FEATURE_SHRINK``)), n = ``tail_features``.
 
 Few or very large features (a surface cut by a handful of straight boundaries) give few
-independent samples, so their statistics scatter more; the score's ramp allows for that.
+independent samples, so the specimen's own left/right asymmetry scatters more there; the
+weighting lowers the sum on such images, which lets its ramp sit lower for the many-feature ones.
+Both numbers are unchanged by mirroring the image (the time direction plays no part in them).
 """
 
 from __future__ import annotations
@@ -27,6 +33,7 @@ TAIL_LINE_PAIRS = 96  # line pairs (two adjacent lines averaged) used for the ta
 TAIL_NEAR = (1, 4)  # distances (px) from a feature at which its tail is measured
 TAIL_FAR = (5, 10)
 VOTE_SHRINK = 5.0  # the net vote count is divided by (features + this): a few features say little
+FEATURE_SHRINK = 5.0  # tail_weighted = tail_sum · √(n_eff / (n_eff + this)), n_eff from the areas
 # typical clean levels of the three statistics (the 95th percentile on clean synthetic images,
 # development set): they put the three on one scale before they are added
 TAIL_SCALE = {"tail_level_near": 0.05, "tail_level_far": 0.095, "tail_edge_votes": 0.15}
@@ -48,8 +55,11 @@ def tail_evidence(f: np.ndarray) -> dict[str, float]:
     cols = _tail_stats(_line_pairs(f.T))
     ev = dict(rows)
     ev.update({f"{k}_columns": v for k, v in cols.items()})
-    ev["tail_sum"] = sum(rows[k] / TAIL_SCALE[k] for k in TAIL_SCALE)
-    ev["tail_sum_columns"] = sum(cols[k] / TAIL_SCALE[k] for k in TAIL_SCALE)
+    for suffix, stats in (("", rows), ("_columns", cols)):
+        total = sum(stats[k] / TAIL_SCALE[k] for k in TAIL_SCALE)
+        n = stats["tail_features"]
+        ev[f"tail_sum{suffix}"] = total
+        ev[f"tail_weighted{suffix}"] = total * float(np.sqrt(n / (n + FEATURE_SHRINK)))
     return ev
 
 
@@ -82,14 +92,24 @@ def _tail_stats(g: np.ndarray) -> dict[str, float]:
     thr, lo, hi = _feature_threshold(g)
     contrast = hi - lo
     if not contrast > 0:
-        return dict.fromkeys(TAIL_SCALE, 0.0)
+        return dict.fromkeys((*TAIL_SCALE, "tail_features"), 0.0)
     bright = g > thr
+    lab, n = ndimage.label(bright)
     near, far = _level_asymmetry(g, bright, contrast)
     return {
         "tail_level_near": abs(near),
         "tail_level_far": abs(far),
-        "tail_edge_votes": abs(_edge_votes(g, bright)),
+        "tail_edge_votes": abs(_edge_votes(g, bright, lab)),
+        "tail_features": _effective_count(lab, n),
     }
+
+
+def _effective_count(lab: np.ndarray, n: int) -> float:
+    """Kish's effective number (Σ a)² / Σ a² of the labelled features, a = their areas."""
+    if n == 0:
+        return 0.0
+    areas = np.bincount(lab.ravel(), minlength=n + 1)[1:].astype(np.float64)
+    return float(areas.sum() ** 2 / np.sum(areas * areas))
 
 
 def _level_asymmetry(g: np.ndarray, bright: np.ndarray, contrast: float) -> tuple[float, float]:
@@ -126,7 +146,7 @@ def _level_asymmetry(g: np.ndarray, bright: np.ndarray, contrast: float) -> tupl
     return out[0], out[1]
 
 
-def _edge_votes(g: np.ndarray, bright: np.ndarray, reach: int = 3) -> float:
+def _edge_votes(g: np.ndarray, bright: np.ndarray, lab: np.ndarray, reach: int = 3) -> float:
     """Features whose downstream edge is much softer than their upstream one, net, per feature.
 
     On every line each feature run starts with a rise and ends with a fall; a tail softens the
@@ -137,7 +157,6 @@ def _edge_votes(g: np.ndarray, bright: np.ndarray, reach: int = 3) -> float:
     features say little (``VOTE_SHRINK``). Shading across a feature changes both of its edges
     alike.
     """
-    lab, _ = ndimage.label(bright)
     d = np.zeros_like(g)
     d[:, 1:-1] = 0.5 * (g[:, 2:] - g[:, :-2])
     _, w = bright.shape

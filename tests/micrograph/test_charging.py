@@ -14,11 +14,13 @@ The detector's ramps were set on development sets made the same way with other s
 from seed 20000 and 60 per kind from seed 30000, ``benchmarks/charging_devset.py``; and 336
 clean and 80 charged made like ``test_accuracy.py``'s set from seeds 777000 and 888000), never
 on this set. Figures at the time of writing, development set / this test set: clean flagged
-1.9 % / 0 % (second development set 2.4 %; the horizontal-edge scenes are the hard group);
-detected at strength ≥ 0.3: clipped 0.97 / 0.94, line jumps 1.00 / 0.94, streaks 0.98 / 1.00,
-tails 0.47 / 0.39, torn lines 0.83 / 0.94, shear 0.85 / 0.78, nonsense 1.00 / 1.00, all kinds
-0.87 / 0.86 — short of the issue's 90 % overall, because tails and slips under heavy blur are
-missed (see ``facility/micrograph/charging.py``, "Known limits").
+1.9 % / 0 % (second development set 2.4 %, 8 of 336, its charged 68 of 80; the horizontal-edge
+scenes are the hard group); detected at strength ≥ 0.3: clipped 0.97 / 0.94, line jumps
+1.00 / 0.94, streaks 0.98 / 1.00, tails 0.53 / 0.39, torn lines 0.83 / 0.94, shear 0.85 / 0.78,
+nonsense 1.00 / 1.00, all kinds 0.88 / 0.86 — short of the issue's 90 % overall, because tails
+and slips under heavy blur are missed (see ``facility/micrograph/charging.py``, "Known
+limits"). Weighting the tail sum by the effective number of features lifted tails on the
+development set from 0.47 to 0.53 and left this set's figures as they were.
 """
 
 from __future__ import annotations
@@ -165,7 +167,7 @@ def test_detection_on_charged_images(charged_results) -> None:
     for kind in ("clipped", "line_jumps", "streaks", "nonsense"):
         assert rates[kind] >= 0.9, kind
     # ... and not for the others: these floors guard what is reached now, below the figures
-    # of the development set (torn lines 0.83, shear 0.85, tails 0.47) and of this one (0.94,
+    # of the development set (torn lines 0.83, shear 0.85, tails 0.53) and of this one (0.94,
     # 0.78, 0.39; 18 images per kind)
     for kind, floor in (("torn_lines", 0.75), ("shear", 0.65), ("tails", 0.3)):
         assert rates[kind] >= floor, kind
@@ -187,7 +189,7 @@ def test_scores_and_evidence_are_plain_numbers(clean_results, charged_results) -
     keys = set(clean_results[0][2].evidence)
     for name in ("clipped_fraction", "top_spike_ratio", "line_jump", "streak_rows", "streak_ratio"):
         assert name in keys
-    for name in ("tail_sum", "torn_segments", "slip_gain", "shift_ratio", "shift_run_ratio"):
+    for name in ("tail_sum", "tail_weighted", "torn_segments", "slip_gain", "shift_ratio"):
         assert name in keys
 
 
@@ -279,7 +281,8 @@ def test_tail_statistics_do_not_care_for_the_direction_of_time() -> None:
         seed=21, shape=(256, 272), scene="particles", charging=ChargingSpec(("tails",), 0.6)
     ).image.astype(np.float32)
     a, b = tail_evidence(img), tail_evidence(img[:, ::-1])
-    for key in ("tail_level_near", "tail_level_far", "tail_edge_votes", "tail_sum"):
+    keys = ("tail_level_near", "tail_level_far", "tail_edge_votes", "tail_sum", "tail_features")
+    for key in (*keys, "tail_weighted"):
         assert a[key] == pytest.approx(b[key], rel=1e-6, abs=1e-9), key
 
 
@@ -294,6 +297,26 @@ def test_tail_statistics_follow_the_scan_direction() -> None:
     assert turned["tail_sum_columns"] == pytest.approx(rows["tail_sum"], rel=1e-6)
     clean = tail_evidence(np.random.default_rng(6).poisson(sig).astype(np.float32))
     assert rows["tail_sum"] > 3.0 * clean["tail_sum"]
+
+
+def test_effective_feature_count() -> None:
+    # Kish's effective sample size (Σ a)² / Σ a² (Kish, Survey Sampling, 1965; from memory):
+    # k features of equal area count k; one feature with the rest far smaller counts about 1
+    from scipy import ndimage
+
+    from facility.micrograph.charging_tails import _effective_count
+
+    equal = np.zeros((64, 64), dtype=bool)
+    for i in range(4):
+        equal[4 + 16 * i : 10 + 16 * i, 8:20] = True
+    lab, n = ndimage.label(equal)
+    assert _effective_count(lab, n) == pytest.approx(4.0)
+    uneven = np.zeros((64, 64), dtype=bool)
+    uneven[:40, :40] = True
+    uneven[50, 50] = uneven[50, 60] = True
+    lab, n = ndimage.label(uneven)
+    assert _effective_count(lab, n) == pytest.approx(1602**2 / (1600**2 + 2), rel=1e-12)
+    assert _effective_count(np.zeros((8, 8), dtype=np.int32), 0) == 0.0
 
 
 def test_line_shift_matches_scipy_shift() -> None:
