@@ -87,6 +87,16 @@ def _media_in_tmp(settings, tmp_path):
 
 
 @pytest.fixture(autouse=True)
+def _fresh_finder_digest():
+    # The finder keeps a per-process copy of logbook rows; each test's rows are rolled back.
+    from facility.finder import digest
+
+    digest.current().clear()
+    yield
+    digest.current().clear()
+
+
+@pytest.fixture(autouse=True)
 def _fast_passwords(settings):
     # The real hasher is slow by design; tests need no protection against brute force.
     settings.PASSWORD_HASHERS = ["django.contrib.auth.hashers.MD5PasswordHasher"]

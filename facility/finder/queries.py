@@ -1,35 +1,27 @@
 """The finder: past sessions on similar specimens, and what worked and failed on them.
 
-Scoring happens in the database (one annotated query, ordered, limited); only the few hundred
-best candidates come back to Python for the summary and the explanations.
+Ranking uses the finder's digest (``digest.py``: attribute columns of every session in numpy
+arrays) and asks the database for text relevance of the candidates that could still make the
+list; only the few hundred best are then read from the logbook, fresh, for the summary and the
+explanations.
 """
 
 from __future__ import annotations
 
-import math
 import statistics
 from collections import Counter
+from collections.abc import Collection
 from dataclasses import dataclass, field
 from typing import Any
 
+import numpy as np
 from django.contrib.auth.models import AbstractBaseUser
-from django.db.models import (
-    Case,
-    Exists,
-    ExpressionWrapper,
-    F,
-    FloatField,
-    OuterRef,
-    Prefetch,
-    Q,
-    QuerySet,
-    Value,
-    When,
-)
-from django.db.models.functions import Abs, Greatest, Ln
+from django.db.models import Exists, OuterRef, Q, QuerySet
 
+from facility.finder import digest
 from facility.finder import text as text_search
 from facility.finder.criteria import WEIGHTS, Criteria
+from facility.instruments.models import Instrument
 from facility.logbook.models import (
     AnalysisState,
     Conditions,
@@ -38,13 +30,15 @@ from facility.logbook.models import (
     InstrumentSession,
     Micrograph,
 )
+from facility.people.models import Account
 from facility.people.queries import group_ids_of, is_staff
 
 # Outcome codes that make a session a "failure" for the summary.
 FAILURE_CODES = (FlagCode.CHARGING, FlagCode.LOW_RESOLUTION, FlagCode.ASTIGMATISM)
 SUMMARY_POOL = 200  # best candidates the summary is drawn from
 SIMILAR_SHARE = 0.5  # a candidate is "similar" at half the best possible score or more
-TEXT_MATCHES = 500  # sessions whose text matches, scored for relevance
+# Most specimens whose text relevance one search asks the database for (see _ranked_ids).
+TEXT_CANDIDATES = 20_000
 
 
 @dataclass
@@ -89,7 +83,7 @@ class Result:
     suggestion: dict[str, Any]
 
 
-def _pool(user: AbstractBaseUser) -> QuerySet[InstrumentSession]:
+def _pool(user: AbstractBaseUser, mine: Collection[int]) -> QuerySet[InstrumentSession]:
     """Sessions that may inform this person: their own groups', and those of groups that let
     their sessions count (anonymised) in facility-wide summaries. Staff: all."""
     qs = InstrumentSession.objects.filter(
@@ -97,187 +91,166 @@ def _pool(user: AbstractBaseUser) -> QuerySet[InstrumentSession]:
     )
     if is_staff(user):
         return qs
-    mine = group_ids_of(user)
-    return qs.filter(Q(account__group__counts_in_summaries=True) | Q(account__group_id__in=mine))
-
-
-def _match(field_name: str, value: Any, weight: float):
-    return Case(
-        When(**{field_name: value}, then=Value(weight)),
-        default=Value(0.0),
-        output_field=FloatField(),
+    return qs.filter(
+        Q(account__group__counts_in_summaries=True) | Q(account__group_id__in=list(mine))
     )
 
 
-def _score(criteria: Criteria):
-    parts = []
-    c = criteria
-    if c.material_class:
-        parts.append(
-            _match("specimen__material_class", c.material_class, WEIGHTS["material_class"])
+def _accounts_drawn_on(user: AbstractBaseUser, mine: Collection[int]) -> list[int] | None:
+    """Accounts whose sessions may inform this person (None: all, for staff) — the same rule
+    as :func:`_pool`, resolved first so that the digest can filter by it."""
+    if is_staff(user):
+        return None
+    return list(
+        Account.objects.filter(
+            Q(group__counts_in_summaries=True) | Q(group_id__in=list(mine))
+        ).values_list("pk", flat=True)
+    )
+
+
+def _ranked_ids(
+    user: AbstractBaseUser, criteria: Criteria, limit: int, mine: Collection[int]
+) -> list[tuple[int, float]]:
+    """(session id, score) of the best `limit` sessions with a positive score, best first.
+
+    Attribute scores come from the digest for every session at once. Text relevance (a query
+    per search) is needed only where it can change the answer: a session can enter the best
+    `limit` only if its attribute score plus the whole text weight reaches the `limit`-th best
+    attribute score, so relevance is asked for those candidates alone and the answer is exact.
+    When the attributes do not narrow the field enough (or none is given), the most relevant
+    specimens of all are taken instead.
+    """
+    table = digest.current().table()
+    kind_ids: list[int] = []
+    if criteria.instrument_kind:
+        kind_ids = list(
+            Instrument.objects.filter(kind=criteria.instrument_kind).values_list("pk", flat=True)
         )
-    if c.conductivity:
-        parts.append(_match("specimen__conductivity", c.conductivity, WEIGHTS["conductivity"]))
-    if c.form:
-        parts.append(_match("specimen__form", c.form, WEIGHTS["form"]))
-    if c.beam_sensitive is not None:
-        parts.append(
-            _match("specimen__beam_sensitive", c.beam_sensitive, WEIGHTS["beam_sensitive"])
-        )
-    if c.vacuum_mode:
-        parts.append(_match("vacuum_mode", c.vacuum_mode, WEIGHTS["vacuum_mode"]))
-    if c.instrument_kind:
-        parts.append(_match("instrument__kind", c.instrument_kind, WEIGHTS["instrument_kind"]))
-    if c.coating:
-        if c.coating == "none":
-            parts.append(
-                Case(
-                    When(Q(coating__isnull=True) | Q(coating__material="none"), then=Value(1.0)),
-                    default=Value(0.0),
-                    output_field=FloatField(),
-                )
-                * Value(WEIGHTS["coating"])
-            )
+    rows = np.flatnonzero(
+        table.eligible(_accounts_drawn_on(user, mine)) & table.shares_a_strong_attribute(criteria)
+    )
+    total = table.attribute_scores(criteria, kind_ids)
+    if text_search.tokens(criteria.text):
+        text_weight = WEIGHTS["text"]
+        by_attributes = criteria.given() != ["text"]
+        candidates_ = rows
+        if by_attributes and len(rows) > limit:
+            values = total[rows]
+            kth = np.partition(values, len(values) - limit)[len(values) - limit]
+            candidates_ = rows[values + text_weight >= kth - 1e-9]
+        if by_attributes and len(candidates_) <= TEXT_CANDIDATES:
+            specimens = np.unique(table.specimen_id[candidates_])
+            relevance = text_search.relevance_of(specimens, criteria.text)
         else:
-            parts.append(_match("coating__material", c.coating, WEIGHTS["coating"]))
-    if c.feature_size_nm:
-        # Closeness on a log scale: full weight for the same size, none a decade away or more.
-        # Ln on floats: Django's Log casts to numeric on PostgreSQL, which is slow per row.
-        decades = Abs(Ln(F("specimen__feature_size_nm") / Value(float(c.feature_size_nm)))) / Value(
-            math.log(10)
-        )
-        closeness = Greatest(Value(0.0), Value(1.0) - decades)
-        parts.append(
-            Case(
-                When(
-                    specimen__feature_size_nm__gt=0,
-                    then=closeness * Value(WEIGHTS["feature_size_nm"]),
-                ),
-                default=Value(0.0),
-                output_field=FloatField(),
-            )
-        )
-    if not parts:
-        return Value(0.0, output_field=FloatField())
-    total = parts[0]
-    for part in parts[1:]:
-        total = total + part
-    return ExpressionWrapper(total, output_field=FloatField())
+            # every session has a specimen: the most relevant few times `limit` specimens
+            # give enough sessions even when some are not in this person's pool
+            wanted = TEXT_CANDIDATES if by_attributes else max(5 * limit, 1000)
+            relevance = text_search.best_matches(criteria.text, wanted)
+        if relevance:
+            ids = np.fromiter(relevance, dtype=np.int64, count=len(relevance))
+            rel = np.fromiter(relevance.values(), dtype=np.float64, count=len(relevance))
+            order = np.argsort(ids)
+            ids, rel = ids[order], rel[order]
+            where = np.searchsorted(ids, table.specimen_id[rows]).clip(0, len(ids) - 1)
+            found = ids[where] == table.specimen_id[rows]
+            total = total.copy()
+            total[rows[found]] += text_weight * np.minimum(1.0, rel[where[found]])
+    rows = rows[total[rows] > 0]
+    best = table.best(total, rows, limit)
+    return [(int(table.session_id[i]), float(total[i])) for i in best]
 
 
-def _prefilter(criteria: Criteria) -> Q | None:
-    """Sessions that match at least one strong attribute; None when no attribute is given."""
-    q = None
-    for name, field_name in (
-        ("material_class", "specimen__material_class"),
-        ("conductivity", "specimen__conductivity"),
-        ("form", "specimen__form"),
-    ):
-        value = getattr(criteria, name)
-        if value:
-            term = Q(**{field_name: value})
-            q = term if q is None else q | term
-    return q
-
-
-def _ranked_ids(user: AbstractBaseUser, criteria: Criteria, limit: int) -> list[tuple[int, float]]:
-    """(session id, score) of the best `limit` sessions, scored in two cheap queries.
-
-    The attribute score is computed in the database over the sessions that share an attribute;
-    text relevance only over the (index-found) sessions whose text matches. A session's total
-    is the sum, so the overall best are among the best by attributes plus the text matches.
-    """
-    pool = _pool(user)
-    attribute_score = _score(criteria)
-    scores: dict[int, float] = {}
-    attr_filter = _prefilter(criteria)
-    if attr_filter is not None or not criteria.text:
-        best = _best_by_attributes(pool, criteria, attribute_score, attr_filter, limit)
-        scores.update(best)
-    if criteria.text:
-        relevance = (
-            pool.filter(text_search.text_filter(criteria.text))
-            .annotate(relevance=text_search.relevance(criteria.text), score=attribute_score)
-            # Among the text matches, the best by attributes; the database then computes the
-            # (costly) relevance only for those it returns, not for every match.
-            .order_by("-score", "-started_at")
-            .values_list("pk", "relevance", "score")[:TEXT_MATCHES]
-        )
-        for pk, rel, score in relevance:
-            scores[pk] = float(score) + WEIGHTS["text"] * min(1.0, float(rel or 0))
-    positive = {pk: sc for pk, sc in scores.items() if sc > 0}
-    return list(_cut(positive, limit).items())
-
-
-def _top(qs, score, limit: int) -> list[tuple[int, float]]:
-    return [
-        (pk, float(value))
-        for pk, value in qs.annotate(score=score)
-        .order_by("-score", "-started_at")
-        .values_list("pk", "score")[:limit]
-    ]
-
-
-def _cut(scores: dict[int, float], limit: int) -> dict[int, float]:
-    """The `limit` best; ties go to the newer session (larger id, as sessions are logged in
-    order — close enough for a tie-break, and it saves fetching dates)."""
-    best = sorted(scores.items(), key=lambda item: (-round(item[1], 9), -item[0]))[:limit]
-    return dict(best)
-
-
-def _best_by_attributes(pool, criteria: Criteria, score, attr_filter, limit: int):
-    """The `limit` best sessions by attribute score.
-
-    First among the sessions that share the strongest given attribute (an indexed, narrow
-    query). That answer is exact when its last score beats anything a session lacking that
-    attribute could reach; otherwise the wide query over every sharing session decides.
-    """
-    if attr_filter is None:
-        return _top(pool, score, limit)
-    for name, field_name in (
-        ("material_class", "specimen__material_class"),
-        ("conductivity", "specimen__conductivity"),
-        ("form", "specimen__form"),
-    ):
-        value = getattr(criteria, name)
-        if value:
-            narrow = _top(pool.filter(**{field_name: value}), score, limit)
-            ceiling = criteria.max_score() - WEIGHTS["text"] * bool(criteria.text) - WEIGHTS[name]
-            if len(narrow) == limit and narrow[-1][1] > ceiling:
-                return narrow
+def candidates(
+    user: AbstractBaseUser, criteria: Criteria, limit: int, mine: Collection[int] | None = None
+) -> list[InstrumentSession]:
+    """The best `limit` sessions, read fresh from the logbook, best first (each with `score`).
+    `mine`: the person's group ids, when the caller has them already."""
+    mine = set(group_ids_of(user)) if mine is None else mine
+    for _attempt in range(3):
+        ranked = _ranked_ids(user, criteria, limit, mine)
+        sessions = _fetch(user, mine, dict(ranked))
+        gone = {pk for pk, _ in ranked} - {s.pk for s in sessions}
+        if not gone:
             break
-    return _top(pool.filter(attr_filter), score, limit)
+        # the digest ranked sessions that are gone or no longer eligible: rank again without
+        digest.current().forget(gone)
+    sessions.sort(key=lambda s: (-round(s.score, 9), -s.started_at.timestamp()))
+    return sessions[:limit]
 
 
-def candidates(user: AbstractBaseUser, criteria: Criteria, limit: int) -> list[InstrumentSession]:
-    ranked = _ranked_ids(user, criteria, limit)
-    score_of = dict(ranked)
+_CONDITION_FIELDS = (
+    "accelerating_voltage_kv",
+    "working_distance_mm",
+    "probe_current_na",
+    "detector",
+    "dwell_time_us",
+    "vacuum_mode",
+)
+# Only what hits and the summary show: a finder page reads a few hundred sessions per search.
+_SESSION_FIELDS = (
+    "started_at",
+    "vacuum_mode",
+    "specimen__name",
+    "specimen__material",
+    "specimen__material_class",
+    "specimen__conductivity",
+    "specimen__form",
+    "specimen__feature_size_nm",
+    "specimen__preparation",
+    "specimen__notes",
+    "coating__material",
+    "coating__thickness_nm",
+    "instrument__name",
+    "instrument__kind",
+    "operator__username",
+    "operator__first_name",
+    "operator__last_name",
+    "account__group__name",
+    "account__group__shares_details",
+)
+
+
+def _fetch(
+    user: AbstractBaseUser, mine: Collection[int], score_of: dict[int, float]
+) -> list[InstrumentSession]:
+    """The sessions, each with `score`, `failed`, `analysed`, `condition_rows` (Conditions in
+    logged order) and `failure_codes` (codes of its standing failure flags)."""
     failure = Flag.objects.filter(
         session=OuterRef("pk"), code__in=FAILURE_CODES, dismissed_at__isnull=True
     )
     analysed = Micrograph.objects.filter(session=OuterRef("pk"), state=AnalysisState.DONE)
     sessions = list(
-        InstrumentSession.objects.filter(pk__in=list(score_of))
+        _pool(user, mine)
+        .filter(pk__in=list(score_of))
         .annotate(failed=Exists(failure), analysed=Exists(analysed))
         .select_related("specimen", "coating", "instrument", "operator", "account__group")
-        .prefetch_related(
-            Prefetch("conditions", queryset=Conditions.objects.order_by("id")),
-            Prefetch(
-                "flags",
-                queryset=Flag.objects.filter(code__in=FAILURE_CODES, dismissed_at__isnull=True),
-                to_attr="failure_flags",
-            ),
-        )
+        .only(*_SESSION_FIELDS)
     )
+    ids = [s.pk for s in sessions]
+    rows: dict[int, list[Conditions]] = {pk: [] for pk in ids}
+    # Plain queries grouped here rather than prefetch_related, whose per-object bookkeeping
+    # cost more than the queries themselves at a few hundred sessions.
+    for row in (
+        Conditions.objects.filter(session_id__in=ids)
+        .only("session_id", *_CONDITION_FIELDS)
+        .order_by("id")
+    ):
+        rows[row.session_id].append(row)
+    codes: dict[int, list[str]] = {pk: [] for pk in ids}
+    for pk, code in Flag.objects.filter(
+        session_id__in=ids, code__in=FAILURE_CODES, dismissed_at__isnull=True
+    ).values_list("session_id", "code"):
+        codes[pk].append(code)
     for session in sessions:
         session.score = score_of[session.pk]
-    sessions.sort(key=lambda s: (-round(s.score, 9), -s.started_at.timestamp()))
-    return sessions[:limit]
+        session.condition_rows = rows[session.pk]
+        session.failure_codes = codes[session.pk]
+    return sessions
 
 
 def _outcome(session: InstrumentSession) -> str:
     if session.failed:
-        codes = sorted(f.code for f in session.failure_flags)
+        codes = sorted(session.failure_codes)
         return codes[0] if codes else "flagged"
     return "worked" if session.analysed else "not analysed"
 
@@ -312,17 +285,9 @@ def _reasons(session: InstrumentSession, c: Criteria) -> list[str]:
 
 
 def _conditions(session: InstrumentSession) -> list[dict[str, Any]]:
-    names = (
-        "accelerating_voltage_kv",
-        "working_distance_mm",
-        "probe_current_na",
-        "detector",
-        "dwell_time_us",
-        "vacuum_mode",
-    )
     return [
-        {n: getattr(row, n) for n in names if getattr(row, n) not in (None, "")}
-        for row in session.conditions.all()
+        {n: getattr(row, n) for n in _CONDITION_FIELDS if getattr(row, n) not in (None, "")}
+        for row in session.condition_rows
     ]
 
 
@@ -384,7 +349,7 @@ def _median_range(values: list[float]) -> dict[str, Any] | None:
 
 
 def _settings_of(sessions: list[InstrumentSession]) -> dict[str, Any]:
-    rows = [row for s in sessions for row in s.conditions.all()]
+    rows = [row for s in sessions for row in s.condition_rows]
 
     def numbers(name: str) -> list[float]:
         return [getattr(r, name) for r in rows if getattr(r, name) is not None]
@@ -407,14 +372,14 @@ def _settings_of(sessions: list[InstrumentSession]) -> dict[str, Any]:
 
 def _max_kv(session: InstrumentSession) -> float | None:
     values = [
-        r.accelerating_voltage_kv for r in session.conditions.all() if r.accelerating_voltage_kv
+        r.accelerating_voltage_kv for r in session.condition_rows if r.accelerating_voltage_kv
     ]
     return max(values) if values else None
 
 
 def _failure_sentences(failed: list[InstrumentSession], worked_kv_max: float | None) -> list[str]:
     sentences = []
-    charging = [s for s in failed if any(f.code == FlagCode.CHARGING for f in s.failure_flags)]
+    charging = [s for s in failed if FlagCode.CHARGING in s.failure_codes]
     if charging:
         limit = worked_kv_max if worked_kv_max else 5.0
         traits = {
@@ -430,10 +395,10 @@ def _failure_sentences(failed: list[InstrumentSession], worked_kv_max: float | N
             sentences.append(f"{n} of {len(charging)} charging cases were {_join(common)}.")
         else:
             sentences.append(f"{len(charging)} similar sessions showed charging.")
-    blurred = [s for s in failed if any(f.code == FlagCode.LOW_RESOLUTION for f in s.failure_flags)]
+    blurred = [s for s in failed if FlagCode.LOW_RESOLUTION in s.failure_codes]
     if blurred:
         long_wd = [
-            s for s in blurred if any((r.working_distance_mm or 0) > 8 for r in s.conditions.all())
+            s for s in blurred if any((r.working_distance_mm or 0) > 8 for r in s.condition_rows)
         ]
         if long_wd and len(long_wd) * 2 >= len(blurred):
             sentences.append(
@@ -467,8 +432,8 @@ def suggestion_from(summary: Summary) -> dict[str, Any]:
 
 def search(user: AbstractBaseUser, criteria: Criteria, *, limit: int = 20) -> Result:
     """Ranked similar sessions (details only where allowed) and the summary over all of them."""
-    pool = candidates(user, criteria, SUMMARY_POOL)
     mine = set(group_ids_of(user))
+    pool = candidates(user, criteria, SUMMARY_POOL, mine)
     cutoff = SIMILAR_SHARE * criteria.max_score()
     similar = [s for s in pool if s.score >= cutoff]
     analysed = [s for s in similar if s.analysed]

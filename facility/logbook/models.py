@@ -62,6 +62,9 @@ class Specimen(models.Model):
     )
     group = models.ForeignKey(Group, on_delete=models.PROTECT, related_name="specimens")
     created_at = models.DateTimeField(auto_now_add=True)
+    # Every save moves it: readers that keep a copy of logbook rows (the finder's digest) find
+    # what changed since they last looked by this, without the logbook having to tell them.
+    updated_at = models.DateTimeField(auto_now=True, db_index=True)
 
     class Meta:
         ordering = ["-created_at"]
@@ -103,6 +106,7 @@ class Coating(models.Model):
         max_length=12, choices=CoatingMethod.choices, default=CoatingMethod.SPUTTER
     )
     applied_at = models.DateTimeField(null=True, blank=True)
+    updated_at = models.DateTimeField(auto_now=True, db_index=True)  # as Specimen.updated_at
 
     class Meta:
         constraints = [
@@ -157,6 +161,7 @@ class InstrumentSession(models.Model):
     notes = models.TextField(blank=True)
     fault_report = models.TextField(blank=True)
     idempotency_key = models.CharField(max_length=80, blank=True)
+    updated_at = models.DateTimeField(auto_now=True, db_index=True)  # as Specimen.updated_at
 
     history = HistoricalRecords()
 

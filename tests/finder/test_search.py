@@ -300,24 +300,3 @@ def test_charging_report_counts_by_cell(facility, logbook, settings):
     assert sum(c.sessions for c in cells.values()) == 7
     svg = heat_map_svg(list(cells.values()))
     assert svg.lstrip().startswith("<?xml") and "<svg" in svg
-
-
-@pytest.mark.parametrize("limit", [1, 2, 3, 5, 8])
-@pytest.mark.parametrize(
-    "query",
-    [
-        QUERY,
-        dict(material_class="metal", conductivity="insulating", form="membrane"),
-        dict(conductivity="insulating", feature_size_nm=300, coating="none"),
-    ],
-)
-def test_narrow_first_query_gives_the_same_best_as_the_wide_one(facility, logbook, limit, query):
-    from facility.finder import queries
-
-    criteria = make_criteria(**query)
-    pool = queries._pool(facility.researcher_a)
-    score = queries._score(criteria)
-    wide = queries._top(pool.filter(queries._prefilter(criteria)), score, limit)
-    fast = queries._best_by_attributes(pool, criteria, score, queries._prefilter(criteria), limit)
-    assert [round(s, 6) for _, s in fast] == [round(s, 6) for _, s in wide]
-    assert {pk for pk, _ in fast} == {pk for pk, _ in wide} or len({s for _, s in wide}) < limit
