@@ -43,7 +43,7 @@ RECHECK_SECONDS = 60.0  # how often the margin is looked through again
 RELOAD_SECONDS = 3600.0
 
 # The categorical columns, each stored as a small integer code.
-CATEGORIES = ("material_class", "conductivity", "form", "coating", "vacuum_mode")
+CATEGORIES = ("material_class", "conductivity", "form", "coating", "vacuum_mode", "material")
 STRONG = ("material_class", "conductivity", "form")  # the attributes a similar specimen shares
 UNCOATED = CoatingMaterial.NONE.value  # no coating row and a "none" coating score alike
 
@@ -64,6 +64,7 @@ _FIELDS = (
     "updated_at",
     "specimen__updated_at",
     "coating__updated_at",
+    "specimen__material",
 )
 
 
@@ -80,7 +81,7 @@ class Table:
     size_log10: np.ndarray  # float64, NaN when no feature size is given
     beam_sensitive: np.ndarray  # bool
     alive: np.ndarray  # bool
-    codes: dict[str, np.ndarray]  # category → int16 codes
+    codes: dict[str, np.ndarray]  # category → int32 codes (material names are many)
     vocabulary: dict[str, dict[str, int]]  # category → value → code
 
     def __len__(self) -> int:
@@ -88,6 +89,14 @@ class Table:
 
     def code_of(self, category: str, value: str) -> int:
         return self.vocabulary[category].get(value, -1)
+
+    def names(self, category: str) -> list[str]:
+        """The category's values, in code order (code k is names[k])."""
+        known = self.vocabulary[category]
+        out = [""] * len(known)
+        for value, k in known.items():
+            out[k] = value
+        return out
 
     def eligible(self, account_ids: Iterable[int] | None) -> np.ndarray:
         """Live rows, of the given accounts (None: all accounts)."""
@@ -298,7 +307,7 @@ class Digest:
             beam_sensitive=grown(column("beam_sensitive"), np.bool_, False),
             alive=grown(column("alive"), np.bool_, False),
             codes={
-                c: grown(base.codes[c] if base is not None else None, np.int16, -1)
+                c: grown(base.codes[c] if base is not None else None, np.int32, -1)
                 for c in CATEGORIES
             },
             vocabulary=vocabulary,
@@ -320,6 +329,7 @@ class Digest:
             table.codes["conductivity"][i] = code("conductivity", r[8])
             table.codes["form"][i] = code("form", r[9])
             table.codes["coating"][i] = code("coating", r[12] or UNCOATED)
+            table.codes["material"][i] = code("material", r[16] or "")
         return table
 
 

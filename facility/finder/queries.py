@@ -37,8 +37,8 @@ from facility.people.queries import group_ids_of, is_staff
 FAILURE_CODES = (FlagCode.CHARGING, FlagCode.LOW_RESOLUTION, FlagCode.ASTIGMATISM)
 SUMMARY_POOL = 200  # best candidates the summary is drawn from
 SIMILAR_SHARE = 0.5  # a candidate is "similar" at half the best possible score or more
-# Most specimens whose text relevance one search asks the database for (see _ranked_ids).
-TEXT_CANDIDATES = 20_000
+# Sessions (best by attributes) whose text relevance is asked for first (see _add_text).
+FIRST_TEXT_CHUNK = 1000
 
 
 @dataclass
@@ -113,12 +113,9 @@ def _ranked_ids(
 ) -> list[tuple[int, float]]:
     """(session id, score) of the best `limit` sessions with a positive score, best first.
 
-    Attribute scores come from the digest for every session at once. Text relevance (a query
-    per search) is needed only where it can change the answer: a session can enter the best
-    `limit` only if its attribute score plus the whole text weight reaches the `limit`-th best
-    attribute score, so relevance is asked for those candidates alone and the answer is exact.
-    When the attributes do not narrow the field enough (or none is given), the most relevant
-    specimens of all are taken instead.
+    Attribute scores come from the digest for every session at once; text relevance is asked
+    of the database only where it can still change the answer (:func:`_add_text`). For a
+    search by text alone, the most relevant specimens of all are taken.
     """
     table = digest.current().table()
     kind_ids: list[int] = []
@@ -131,33 +128,112 @@ def _ranked_ids(
     )
     total = table.attribute_scores(criteria, kind_ids)
     if text_search.tokens(criteria.text):
-        text_weight = WEIGHTS["text"]
-        by_attributes = criteria.given() != ["text"]
-        candidates_ = rows
-        if by_attributes and len(rows) > limit:
-            values = total[rows]
-            kth = np.partition(values, len(values) - limit)[len(values) - limit]
-            candidates_ = rows[values + text_weight >= kth - 1e-9]
-        if by_attributes and len(candidates_) <= TEXT_CANDIDATES:
-            specimens = np.unique(table.specimen_id[candidates_])
-            relevance = text_search.relevance_of(specimens, criteria.text)
+        names = _NameParts(table, criteria.text)
+        if criteria.given() == ["text"]:
+            # every session has a specimen: the best few times `limit` documents give enough
+            # sessions even when some are not in this person's pool
+            documents = text_search.best_documents(criteria.text, max(5 * limit, 1000))
+            everything = np.arange(len(table))
+            total = total + names.bonus(everything, _lookup(table, documents, everything))
         else:
-            # every session has a specimen: the most relevant few times `limit` specimens
-            # give enough sessions even when some are not in this person's pool
-            wanted = TEXT_CANDIDATES if by_attributes else max(5 * limit, 1000)
-            relevance = text_search.best_matches(criteria.text, wanted)
-        if relevance:
-            ids = np.fromiter(relevance, dtype=np.int64, count=len(relevance))
-            rel = np.fromiter(relevance.values(), dtype=np.float64, count=len(relevance))
-            order = np.argsort(ids)
-            ids, rel = ids[order], rel[order]
-            where = np.searchsorted(ids, table.specimen_id[rows]).clip(0, len(ids) - 1)
-            found = ids[where] == table.specimen_id[rows]
-            total = total.copy()
-            total[rows[found]] += text_weight * np.minimum(1.0, rel[where[found]])
+            total = _add_text(table, total, rows, criteria.text, limit, names)
     rows = rows[total[rows] > 0]
     best = table.best(total, rows, limit)
     return [(int(table.session_id[i]), float(total[i])) for i in best]
+
+
+def _kth_best(values: np.ndarray, k: int) -> float:
+    if len(values) < k:
+        return -np.inf
+    return float(np.partition(values, len(values) - k)[len(values) - k])
+
+
+class _NameParts:
+    """The material-name part of text relevance for every row, from one query over the
+    distinct names (see ``text.py``)."""
+
+    def __init__(self, table: digest.Table, text: str) -> None:
+        similarity, passes = text_search.name_similarity(table.names("material"), text)
+        codes = table.codes["material"]
+        known = codes >= 0
+        self.similarity = np.where(known, similarity[codes.clip(0)] if len(similarity) else 0, 0.0)
+        self.passes = known & (passes[codes.clip(0)] if len(passes) else False)
+
+    def bonus(self, rows: np.ndarray, document: tuple[np.ndarray, np.ndarray] | None) -> np.ndarray:
+        """The text part of the score for `rows` (zero elsewhere); `document`: (matched, rank)
+        for those rows, or None where no document part is known yet."""
+        out = np.zeros(len(self.similarity), dtype=np.float64)
+        if document is None:
+            matched = np.zeros(len(rows), dtype=bool)
+            rank = np.zeros(len(rows), dtype=np.float64)
+        else:
+            matched, rank = document
+        relevance = text_search.combine(matched, rank, self.similarity[rows], self.passes[rows])
+        out[rows] = WEIGHTS["text"] * np.minimum(1.0, relevance)
+        return out
+
+
+def _lookup(
+    table: digest.Table, by_specimen: dict[int, float], rows: np.ndarray
+) -> tuple[np.ndarray, np.ndarray]:
+    """(found, value) for `rows` from a dict keyed by specimen id."""
+    found = np.zeros(len(rows), dtype=bool)
+    value = np.zeros(len(rows), dtype=np.float64)
+    if not by_specimen or not len(rows):
+        return found, value
+    ids = np.fromiter(by_specimen, dtype=np.int64, count=len(by_specimen))
+    values = np.fromiter(by_specimen.values(), dtype=np.float64, count=len(by_specimen))
+    order = np.argsort(ids)
+    ids, values = ids[order], values[order]
+    specimens = table.specimen_id[rows]
+    where = np.searchsorted(ids, specimens).clip(0, len(ids) - 1)
+    found = ids[where] == specimens
+    value[found] = values[where[found]]
+    return found, value
+
+
+def _add_text(
+    table: digest.Table,
+    attributes: np.ndarray,
+    rows: np.ndarray,
+    text: str,
+    limit: int,
+    names: _NameParts,
+) -> np.ndarray:
+    """Attribute scores plus the text bonus wherever it can matter; exact for the best `limit`.
+
+    The name part of relevance is known for every row at once; the document part is asked of
+    the database only where it can still change the answer. A session can enter the best
+    `limit` only if its attribute score plus the whole text weight reaches the `limit`-th best
+    total known so far. The document part is asked first for the sessions best by attributes;
+    the bonuses found raise that bar, which usually leaves few candidates. For those left, one
+    query asks whether the text matches few documents in the whole facility (a rare word: the
+    index answers at once); if many, the candidates are asked about in growing chunks, best
+    first, until none is left that could change the answer.
+    """
+    weight = WEIGHTS["text"]
+    total = attributes + names.bonus(rows, None)
+    bar = _kth_best(total[rows], limit)
+    pending = rows[attributes[rows] + weight >= bar - 1e-9]
+    pending = pending[np.argsort(-attributes[pending], kind="stable")]
+    chunk, probed = FIRST_TEXT_CHUNK, False
+    while len(pending):
+        if not probed and chunk > FIRST_TEXT_CHUNK:
+            probed = True
+            wanted = len(np.unique(table.specimen_id[pending]))
+            every_match = text_search.document_matches(text, wanted)
+            if every_match is not None:
+                bonus = names.bonus(pending, _lookup(table, every_match, pending))
+                total[pending] = attributes[pending] + bonus[pending]
+                break
+        take, pending = pending[:chunk], pending[chunk:]
+        ranks = text_search.document_rank(np.unique(table.specimen_id[take]), text)
+        bonus = names.bonus(take, _lookup(table, ranks, take))
+        total[take] = attributes[take] + bonus[take]
+        chunk *= 4
+        bar = _kth_best(total[rows], limit)
+        pending = pending[attributes[pending] + weight >= bar - 1e-9]
+    return total
 
 
 def candidates(

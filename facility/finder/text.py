@@ -1,11 +1,16 @@
 """Text relevance of specimens: PostgreSQL full-text search and trigrams, or a portable match.
 
-Relevance is a number in [0, 1] per specimen; specimens that do not match get none (0). On
+Relevance is a number in [0, 1] per specimen (:func:`relevance_of` is the definition). On
 PostgreSQL a specimen matches when its stored document (name, material, preparation, notes; see
 migration 0002) matches any of the words, stemmed, or its material name is trigram-similar to
-the whole text (for misspelt names); relevance is the larger of ts_rank × 10 and the trigram
-similarity. Elsewhere a specimen matches when one of its four texts contains a word, and
-relevance is the share of the words found.
+the whole text (pg_trgm's ``%``, for misspelt names); relevance is the larger of ts_rank × 10
+and the trigram similarity of the material name. Elsewhere a specimen matches when one of its
+four texts contains a word, and relevance is the share of the words found.
+
+For speed the finder computes the two parts apart (:func:`combine`): the document's rank per
+specimen (:func:`document_rank`, the GIN index), and the name's similarity once per distinct
+material name (:func:`name_similarity`) — a facility has far fewer names than specimens, and
+the trigram index is unselective for short words that share trigrams with common names.
 """
 
 from __future__ import annotations
@@ -13,6 +18,7 @@ from __future__ import annotations
 import re
 from collections.abc import Sequence
 
+import numpy as np
 from django.db import connection
 from django.db.models import Q
 
@@ -30,11 +36,10 @@ MAX_TOKENS = 8
 _CHUNK = 900  # ids per query on SQLite, below its limit of bound parameters
 
 # ts_rank of a short document rarely exceeds ~0.1: scaled to the trigram's 0–1 range.
-_RELEVANCE_SQL = (
-    f"GREATEST(ts_rank({DOCUMENT_COLUMN}, to_tsquery('english', %(q)s)) * 10.0, "
-    "similarity(material, %(text)s))"
-)
-_MATCH_SQL = f"({DOCUMENT_COLUMN} @@ to_tsquery('english', %(q)s) OR material %% %(text)s)"
+_RANK_SQL = f"ts_rank({DOCUMENT_COLUMN}, to_tsquery('english', %(q)s)) * 10.0"
+_DOCUMENT_MATCH_SQL = f"{DOCUMENT_COLUMN} @@ to_tsquery('english', %(q)s)"
+_RELEVANCE_SQL = f"GREATEST({_RANK_SQL}, similarity(material, %(text)s))"
+_MATCH_SQL = f"({_DOCUMENT_MATCH_SQL} OR material %% %(text)s)"
 
 
 def tokens(text: str) -> list[str]:
@@ -54,8 +59,15 @@ def _params(text: str) -> dict[str, str]:
     return {"q": " | ".join(tokens(text)), "text": text[:200]}
 
 
+def _fetch(sql: str, params: dict) -> dict[int, float]:
+    with connection.cursor() as cursor:
+        cursor.execute(sql, params)
+        return {pk: float(value) for pk, value in cursor.fetchall()}
+
+
 def relevance_of(specimen_ids: Sequence[int], text: str) -> dict[int, float]:
-    """Relevance of the given specimens that match `text` (the others are left out)."""
+    """Relevance of the given specimens that match `text` (the others are left out), in one
+    query: the definition the finder's faster composition (:func:`combine`) must agree with."""
     if not tokens(text) or not len(specimen_ids):
         return {}
     ids = [int(i) for i in specimen_ids]
@@ -64,9 +76,24 @@ def relevance_of(specimen_ids: Sequence[int], text: str) -> dict[int, float]:
             f"SELECT id, {_RELEVANCE_SQL} FROM logbook_specimen "
             f"WHERE id = ANY(%(ids)s) AND {_MATCH_SQL}"
         )
-        with connection.cursor() as cursor:
-            cursor.execute(sql, {**_params(text), "ids": ids})
-            return {pk: float(rel) for pk, rel in cursor.fetchall()}
+        return _fetch(sql, {**_params(text), "ids": ids})
+    return document_rank(ids, text)
+
+
+# --- the two parts ----------------------------------------------------------------------------
+
+
+def document_rank(specimen_ids: Sequence[int], text: str) -> dict[int, float]:
+    """The document part for the given specimens whose document matches (others left out)."""
+    if not tokens(text) or not len(specimen_ids):
+        return {}
+    ids = [int(i) for i in specimen_ids]
+    if uses_postgres():
+        sql = (
+            f"SELECT id, {_RANK_SQL} FROM logbook_specimen "
+            f"WHERE id = ANY(%(ids)s) AND {_DOCUMENT_MATCH_SQL}"
+        )
+        return _fetch(sql, {**_params(text), "ids": ids})
     out: dict[int, float] = {}
     words = tokens(text)
     for start in range(0, len(ids), _CHUNK):
@@ -80,19 +107,64 @@ def relevance_of(specimen_ids: Sequence[int], text: str) -> dict[int, float]:
     return out
 
 
-def best_matches(text: str, limit: int) -> dict[int, float]:
-    """The `limit` most relevant specimens of all (for a search by text alone)."""
-    words = tokens(text)
-    if not words:
+def document_matches(text: str, at_most: int) -> dict[int, float] | None:
+    """The document part for every specimen in the facility whose document matches, if there
+    are no more than `at_most` of them; None if there are more."""
+    if not tokens(text):
         return {}
     if uses_postgres():
         sql = (
-            f"SELECT id, {_RELEVANCE_SQL} AS rel FROM logbook_specimen WHERE {_MATCH_SQL} "
-            "ORDER BY rel DESC, id DESC LIMIT %(limit)s"
+            f"SELECT id, {_RANK_SQL} FROM logbook_specimen WHERE {_DOCUMENT_MATCH_SQL} LIMIT %(n)s"
         )
-        with connection.cursor() as cursor:
-            cursor.execute(sql, {**_params(text), "limit": limit})
-            return {pk: float(rel) for pk, rel in cursor.fetchall()}
+        found = _fetch(sql, {**_params(text), "n": at_most + 1})
+    else:
+        found = _portable_matches(text, at_most + 1)
+    return None if len(found) > at_most else found
+
+
+def best_documents(text: str, limit: int) -> dict[int, float]:
+    """The document part for the `limit` specimens whose documents match best."""
+    if not tokens(text):
+        return {}
+    if uses_postgres():
+        sql = (
+            f"SELECT id, {_RANK_SQL} AS rank FROM logbook_specimen WHERE {_DOCUMENT_MATCH_SQL} "
+            "ORDER BY rank DESC, id DESC LIMIT %(limit)s"
+        )
+        return _fetch(sql, {**_params(text), "limit": limit})
+    scored = sorted(_portable_matches(text, None).items(), key=lambda item: (-item[1], -item[0]))
+    return dict(scored[:limit])
+
+
+def name_similarity(names: Sequence[str], text: str) -> tuple[np.ndarray, np.ndarray]:
+    """For each material name: pg_trgm's similarity to `text`, and whether it passes ``%``
+    (the similarity threshold). Zero and False everywhere off PostgreSQL."""
+    similarity = np.zeros(len(names), dtype=np.float64)
+    passes = np.zeros(len(names), dtype=bool)
+    if not uses_postgres() or not len(names) or not tokens(text):
+        return similarity, passes
+    sql = (
+        "SELECT k - 1, similarity(m, %(text)s), m %% %(text)s "
+        "FROM unnest(%(names)s::text[]) WITH ORDINALITY AS t(m, k)"
+    )
+    with connection.cursor() as cursor:
+        cursor.execute(sql, {"text": text[:200], "names": list(names)})
+        for k, value, ok in cursor.fetchall():
+            similarity[k], passes[k] = value, ok
+    return similarity, passes
+
+
+def combine(
+    matched: np.ndarray, rank: np.ndarray, similarity: np.ndarray, passes: np.ndarray
+) -> np.ndarray:
+    """Relevance from the parts, elementwise: as :data:`_RELEVANCE_SQL` over :data:`_MATCH_SQL`
+    — the larger of the two for a matching document, the name's similarity alone where only
+    the name passes the trigram threshold, else 0."""
+    return np.where(matched, np.maximum(rank, similarity), np.where(passes, similarity, 0.0))
+
+
+def _portable_matches(text: str, at_most: int | None) -> dict[int, float]:
+    words = tokens(text)
     match = Q()
     for w in words:
         match |= (
@@ -101,14 +173,12 @@ def best_matches(text: str, limit: int) -> dict[int, float]:
             | Q(preparation__icontains=w)
             | Q(notes__icontains=w)
         )
-    scored = [
-        (pk, _share_found(words, texts))
-        for pk, *texts in Specimen.objects.filter(match).values_list(
-            "pk", "name", "material", "preparation", "notes"
-        )
-    ]
-    scored.sort(key=lambda item: (-item[1], -item[0]))
-    return dict(scored[:limit])
+    rows = Specimen.objects.filter(match).values_list(
+        "pk", "name", "material", "preparation", "notes"
+    )
+    if at_most is not None:
+        rows = rows[:at_most]
+    return {pk: _share_found(words, texts) for pk, *texts in rows}
 
 
 def _share_found(words: list[str], texts: Sequence[str | None]) -> float:

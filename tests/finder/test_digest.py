@@ -7,6 +7,7 @@ import datetime as dt
 import math
 import random
 
+import numpy as np
 import pytest
 from django.utils import timezone
 
@@ -120,23 +121,23 @@ def test_ranking_equals_the_score_computed_session_by_session(
         assert [pk for pk, _ in fast] == [pk for pk, _ in slow], user
 
 
-def test_text_candidates_are_pruned_without_changing_the_answer(
-    facility, mixed_logbook, monkeypatch
+@pytest.mark.parametrize("first_chunk", [1, 4, 1000])
+@pytest.mark.parametrize("probe", [True, False])
+@pytest.mark.parametrize("query", [q for q in QUERIES if "text" in q and len(q) > 1])
+def test_text_is_asked_in_chunks_without_changing_the_answer(
+    facility, mixed_logbook, monkeypatch, first_chunk, probe, query
 ):
-    # With attributes and text, relevance is asked only for sessions that could still make
-    # the list; forcing the "too many candidates" branch must give the same first hits when
-    # every specimen fits in it.
-    c = make_criteria(material_class="polymer", form="powder", text="carbon tape")
+    # Relevance is asked first for the best by attributes, then either for every match in the
+    # facility (when there are few) or in growing chunks: each path gives the slow answer.
+    monkeypatch.setattr(queries, "FIRST_TEXT_CHUNK", first_chunk)
+    if not probe:
+        monkeypatch.setattr(text, "document_matches", lambda t, n: None)
+    c = make_criteria(**query)
     mine = set(queries.group_ids_of(facility.researcher_a))
-    pruned = queries._ranked_ids(facility.researcher_a, c, 5, mine)
-    monkeypatch.setattr(queries, "TEXT_CANDIDATES", 0)
-    monkeypatch.setattr(text, "best_matches", lambda t, n: text.relevance_of(_all_specimens(), t))
-    wide = queries._ranked_ids(facility.researcher_a, c, 5, mine)
-    assert pruned == wide
-
-
-def _all_specimens() -> list[int]:
-    return list(Specimen.objects.values_list("pk", flat=True))
+    fast = queries._ranked_ids(facility.researcher_a, c, 5, mine)
+    slow = _slow_ranking(facility.researcher_a, c, 5)
+    assert [pk for pk, _ in fast] == [pk for pk, _ in slow]
+    assert [s for _, s in fast] == pytest.approx([s for _, s in slow], abs=1e-9)
 
 
 def _hit_ids(user, **query) -> list[int]:
@@ -237,3 +238,44 @@ def test_the_digest_reloads_whole_after_a_while(facility, mixed_logbook, monkeyp
     reloaded = digest.current().table()
     assert reloaded is not table
     assert sorted(reloaded.session_id.tolist()) == sorted(table.session_id.tolist())
+
+
+def _table(n: int) -> digest.Table:
+    """A bare table of n live rows, session i on specimen 100 + i, all scores to be given."""
+    ids = np.arange(n, dtype=np.int64)
+    return digest.Table(
+        session_id=ids,
+        specimen_id=ids + 100,
+        account_id=np.zeros(n, dtype=np.int64),
+        instrument_id=np.zeros(n, dtype=np.int64),
+        started_at=ids.astype(np.float64),
+        stamp=np.zeros(n),
+        size_log10=np.full(n, np.nan),
+        beam_sensitive=np.zeros(n, dtype=bool),
+        alive=np.ones(n, dtype=bool),
+        codes={c: np.zeros(n, dtype=np.int32) for c in digest.CATEGORIES},
+        vocabulary={c: {} for c in digest.CATEGORIES},
+    )
+
+
+@pytest.mark.parametrize("first_chunk", [1, 2, 8])
+def test_a_weak_attribute_match_with_strong_text_is_not_pruned(monkeypatch, first_chunk):
+    # Three sessions alike in attributes (5) but without the text, one less alike (3) whose
+    # specimen matches the text fully (+3): it must come first, whatever the chunking.
+    monkeypatch.setattr(queries, "FIRST_TEXT_CHUNK", first_chunk)
+    monkeypatch.setattr(text, "document_matches", lambda t, n: None)
+    asked: list[list[int]] = []
+
+    def relevance_of(specimens, t):
+        asked.append(sorted(int(s) for s in specimens))
+        return {103: 1.0} if 103 in asked[-1] else {}
+
+    monkeypatch.setattr(text, "document_rank", relevance_of)
+    table = _table(6)
+    attributes = np.array([5.0, 5.0, 5.0, 3.0, 1.0, 0.5])
+    rows = np.arange(6)
+    names = queries._NameParts(table, "carbon tape")  # no material names: no name part
+    total = queries._add_text(table, attributes, rows, "carbon tape", 1, names)
+    assert total.tolist() == [5.0, 5.0, 5.0, 6.0, 1.0, 0.5]
+    # the sessions that cannot reach 6 even with the whole text weight are never asked about
+    assert not {104, 105} & {s for batch in asked for s in batch}
