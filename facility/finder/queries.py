@@ -262,8 +262,14 @@ _CONDITION_FIELDS = (
     "dwell_time_us",
     "vacuum_mode",
 )
-# Only what hits and the summary show: a finder page reads a few hundred sessions per search.
+# Only what the summary needs of its few hundred sessions; the hits shown get _HIT_FIELDS too.
 _SESSION_FIELDS = (
+    "started_at",
+    "vacuum_mode",
+    "coating__material",
+    "coating__thickness_nm",
+)
+_HIT_FIELDS = (
     "started_at",
     "vacuum_mode",
     "specimen__name",
@@ -291,15 +297,13 @@ def _fetch(
 ) -> list[InstrumentSession]:
     """The sessions, each with `score`, `failed`, `analysed`, `condition_rows` (Conditions in
     logged order) and `failure_codes` (codes of its standing failure flags)."""
-    failure = Flag.objects.filter(
-        session=OuterRef("pk"), code__in=FAILURE_CODES, dismissed_at__isnull=True
-    )
     analysed = Micrograph.objects.filter(session=OuterRef("pk"), state=AnalysisState.DONE)
     sessions = list(
         _pool(user, mine)
         .filter(pk__in=list(score_of))
-        .annotate(failed=Exists(failure), analysed=Exists(analysed))
-        .select_related("specimen", "coating", "instrument", "operator", "account__group")
+        .annotate(analysed=Exists(analysed))
+        .order_by()
+        .select_related("coating")
         .only(*_SESSION_FIELDS)
     )
     ids = [s.pk for s in sessions]
@@ -321,6 +325,7 @@ def _fetch(
         session.score = score_of[session.pk]
         session.condition_rows = rows[session.pk]
         session.failure_codes = codes[session.pk]
+        session.failed = bool(session.failure_codes)
     return sessions
 
 
@@ -524,7 +529,19 @@ def search(user: AbstractBaseUser, criteria: Criteria, *, limit: int = 20) -> Re
         settings=settings,
         failures=_failure_sentences(failed, kv["max"] if kv else None),
     )
-    hits = [_hit(s, criteria, user, mine) for s in pool[:limit]]
+    shown = pool[:limit]
+    details = {
+        d.pk: d
+        for d in InstrumentSession.objects.filter(pk__in=[s.pk for s in shown])
+        .select_related("specimen", "coating", "instrument", "operator", "account__group")
+        .only(*_HIT_FIELDS)
+    }
+    shown = [s for s in shown if s.pk in details]  # (one deleted in between: left out)
+    for s in shown:  # the lean row carries the score and outcome, the detailed one the rest
+        d = details[s.pk]
+        d.score, d.failed, d.analysed = s.score, s.failed, s.analysed
+        d.condition_rows, d.failure_codes = s.condition_rows, s.failure_codes
+    hits = [_hit(details[s.pk], criteria, user, mine) for s in shown]
     visible_ids = [h.session_id for h in hits if h.visible]
     thumbs: dict[int, list[int]] = {}
     for sid, mid in Micrograph.objects.filter(

@@ -281,9 +281,9 @@ def test_prefill_ignores_values_the_form_would_refuse(as_user, facility):
 # Pinned: sign-in session and user (2), the navigation's facts (1), the person's groups (2: the
 # finder's pool and privacy, the logbook's scoping), the accounts the finder may draw on (1), the
 # finder's digest (1: loaded on first use, then one catch-up query of what changed), candidates
-# with their conditions and failure flags (3), thumbnails (1), which hits link to a session page
-# (1), the person's open sessions (1).
-FINDER_QUERIES = 13
+# with their conditions and failure flags (3), the details of the hits shown (1), thumbnails (1),
+# which hits link to a session page (1), the person's open sessions (1).
+FINDER_QUERIES = 14
 
 
 def test_finder_page_query_count_is_pinned(as_user, facility, logbook, django_assert_num_queries):
