@@ -117,18 +117,26 @@ def _open(source: Source) -> Iterator[IO[bytes]]:
         handle.seek(start)
 
 
+def file_type(head: bytes) -> str | None:
+    """ "tiff", "png" or "jpeg" from a file's first 8 bytes (its magic number); None otherwise."""
+    if head[:4] in _TIFF_MAGICS:
+        return "tiff"
+    if head[:8] == _PNG_MAGIC:
+        return "png"
+    if head[:3] == _JPEG_MAGIC:
+        return "jpeg"
+    return None
+
+
 def _sniff(fh: IO[bytes]) -> str:
     head = fh.read(8)
     fh.seek(0)
     if not head:
         raise ImageReadError("file is empty")
-    if head[:4] in _TIFF_MAGICS:
-        return "tiff"
-    if head == _PNG_MAGIC:
-        return "png"
-    if head[:3] == _JPEG_MAGIC:
-        return "jpeg"
-    raise ImageReadError("unknown file type: not TIFF, PNG or JPEG (checked the first bytes)")
+    kind = file_type(head)
+    if kind is None:
+        raise ImageReadError("unknown file type: not TIFF, PNG or JPEG (checked the first bytes)")
+    return kind
 
 
 def _file_size(fh: IO[bytes]) -> int:

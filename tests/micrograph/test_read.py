@@ -367,3 +367,26 @@ def test_randomly_corrupted_files_never_crash() -> None:
                 assert isinstance(result, LoadedImage) and result.data.ndim == 2
                 outcomes["read"] += 1
     assert outcomes["error"] > 0 and outcomes["read"] > 0  # both paths really exercised
+
+
+@pytest.mark.parametrize(
+    ("head", "kind"),
+    [
+        # TIFF 6.0 specification, section 2 (byte order "II"/"MM", then 42); BigTIFF uses 43
+        (b"II*\x00\x08\x00\x00\x00", "tiff"),
+        (b"MM\x00*\x00\x00\x00\x08", "tiff"),
+        (b"II+\x00\x08\x00\x00\x00", "tiff"),
+        # PNG specification (ISO/IEC 15948), 5.2: the eight-byte signature
+        (b"\x89PNG\r\n\x1a\n", "png"),
+        # JPEG (ITU-T T.81) starts with the SOI marker FF D8, then another marker's FF
+        (b"\xff\xd8\xff\xe0\x00\x10JF", "jpeg"),
+        (b"GIF89a\x01\x00", None),
+        (b"%PDF-1.7", None),
+        (b"\x89PNG\r\n", None),  # a truncated signature is no PNG
+        (b"", None),
+    ],
+)
+def test_file_type_by_magic_number(head: bytes, kind: str | None) -> None:
+    from facility.micrograph.read import file_type
+
+    assert file_type(head) == kind
