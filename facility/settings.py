@@ -243,7 +243,7 @@ SPECTACULAR_SETTINGS = {
         "TokenKindEnum": "api.models.TokenKind",
         "BookingStateEnum": "facility.bookings.models.BookingState",
         "AnalysisStateEnum": "facility.logbook.models.AnalysisState",
-        "InstrumentStateEnum": "api.instrument_state.STATES",
+        "InstrumentStateEnum": "facility.logbook.instrument_state.STATES",
         "VacuumModeEnum": "facility.instruments.models.VacuumMode",
     },
 }

@@ -5,8 +5,8 @@ from __future__ import annotations
 from drf_spectacular.utils import extend_schema_field
 from rest_framework import serializers
 
-from api.instrument_state import STATES, state_of
 from facility.instruments.models import EmitterType, InstrumentKind, VacuumMode
+from facility.logbook.instrument_state import STATES, state_of
 
 
 @extend_schema_field(

@@ -8,9 +8,9 @@ from django.db.models import Model, QuerySet
 from rest_framework import serializers, viewsets
 from rest_framework.generics import get_object_or_404
 
-from api.instrument_state import instruments_visible_to
 from api.permissions import HasScope, token_of
 from facility.errors import Invalid, NotFound
+from facility.logbook.instrument_state import instruments_visible_to
 
 
 class ApiViewSet(viewsets.GenericViewSet):

@@ -8,7 +8,6 @@ from rest_framework.parsers import MultiPartParser
 from rest_framework.request import Request
 from rest_framework.response import Response
 
-from api.instrument_state import instruments_visible_to
 from api.serializers.instruments import BusyQuery, BusySlotOut, InstrumentOut
 from api.serializers.micrographs import MicrographOut, MicrographUploadIn
 from api.throttling import UploadThrottle
@@ -17,6 +16,7 @@ from api.views.base import ApiViewSet
 from facility.bookings.queries import in_window
 from facility.errors import Conflict
 from facility.instruments.models import Instrument
+from facility.logbook.instrument_state import instruments_visible_to
 from facility.logbook.queries import visible_to as sessions_visible_to
 
 

@@ -1,8 +1,8 @@
 """An instrument's state now: free, booked, in session, or out of service.
 
 Read from the bookings and the logbook with two EXISTS subqueries, so a list of instruments costs
-one query however many there are. (A candidate for facility/logbook/queries.py, the first app that
-sees both bookings and sessions; kept here until the logbook owns it.)
+one query however many there are. It lives in the logbook, the first app that sees both bookings
+and sessions; the API's instrument list and pages read it from here.
 """
 
 from __future__ import annotations
