@@ -7,11 +7,15 @@ Nothing here is stored. A counter's value at time t is
 where the anchor is the latest of: the part's last reset (emitter change, pump service or
 replacement, wear-part replacement: value 0), a meter reading taken since that reset (the reading's
 value: the reading wins from its date on), or the counter's origin (pump installation, else the
-instrument's first logbook session: value 0). Use between two times is a database aggregate over
-the closed sessions in between (Sum of beam-on hours, of session lengths, of vent cycles) or plain
+instrument's first logbook session: value 0). Use between two times is the sum over the closed
+sessions in between (of beam-on hours, of session lengths, of vent cycles: usage.py) or plain
 calendar time for parts that run continuously (pumps marked so, and Schottky emitters, which are
-kept hot day and night: see defaults.py). Chart series read the sessions once and apply the same
-arithmetic in Python (`Cumulative`); the tests check the two agree.
+kept hot day and night: see defaults.py). Chart series apply the same arithmetic as differences of
+one cumulative sum (`Cumulative`); the tests check the two agree.
+
+What the counters read — pumps, limits, service events, meter readings, sessions — comes from an
+`UpkeepRecords` (records.py) loaded once for every instrument on a page, so a page costs the same
+few queries however many instruments and counters it shows.
 
 A session that straddles a boundary contributes in proportion to its overlap: its beam-on hours and
 vents are taken as spread evenly over it, since the logbook knows no finer. Open sessions count
@@ -20,18 +24,14 @@ once they are checked out, when their beam-on hours become known.
 
 from __future__ import annotations
 
-import bisect
 import datetime as dt
-from collections.abc import Iterable
 from dataclasses import dataclass
-from decimal import Decimal
 
-from django.db.models import DurationField, ExpressionWrapper, F, Min, Q, QuerySet, Sum
 from django.utils import timezone
 
 from facility.instruments.models import Instrument, Pump
 from facility.logbook.models import InstrumentSession
-from facility.upkeep.defaults import BEAM_ON, CALENDAR, CHAMBER, VENTS, emitter_basis
+from facility.upkeep.defaults import CALENDAR, CHAMBER, VENTS, emitter_basis
 from facility.upkeep.models import (
     PUMP_KINDS,
     Counter,
@@ -40,8 +40,32 @@ from facility.upkeep.models import (
     ServiceEvent,
     ServiceKind,
 )
+from facility.upkeep.records import UpkeepRecords
+from facility.upkeep.usage import (
+    HOUR,
+    SESSION_FIELDS,
+    Cumulative,
+    SessionRow,
+    Sessions,
+    calendar_use,
+    prorated,
+)
 
-HOUR = dt.timedelta(hours=1)
+__all__ = [
+    "HOUR",
+    "SESSION_FIELDS",
+    "Anchor",
+    "CounterSpec",
+    "Cumulative",
+    "ReadingCheck",
+    "SessionRow",
+    "Timeline",
+    "UpkeepRecords",
+    "counter_specs",
+    "prorated",
+    "start_of_day",
+    "use_between",
+]
 
 
 def start_of_day(day: dt.date) -> dt.datetime:
@@ -86,49 +110,59 @@ class CounterSpec:
             return f"Pump: {self.pump.name} ({self.pump.get_kind_display()})"
         return f"Vent cycles: {self.part}"
 
-    def resets(self) -> QuerySet[ServiceEvent]:
-        """Service events that start this counter again."""
-        events = ServiceEvent.objects.filter(instrument=self.instrument)
+    def resets_with(self, event: ServiceEvent) -> bool:
+        """Whether the service event starts this counter again."""
+        if event.instrument_id != self.instrument.pk:
+            return False
         if self.counter == Counter.EMITTER_HOURS:
-            return events.filter(kind=ServiceKind.EMITTER_CHANGE)
+            return event.kind == ServiceKind.EMITTER_CHANGE
         if self.counter == Counter.PUMP_HOURS:
-            return events.filter(kind__in=PUMP_KINDS, pump=self.pump)
-        return events.filter(kind=ServiceKind.PART_REPLACEMENT, part=self.part)
+            assert self.pump is not None
+            return event.kind in PUMP_KINDS and event.pump_id == self.pump.pk
+        return event.kind == ServiceKind.PART_REPLACEMENT and event.part == self.part
 
-    def readings(self) -> QuerySet[MeterReading]:
-        if self.counter == Counter.VENT_CYCLES:
-            return MeterReading.objects.none()
-        return MeterReading.objects.filter(
-            instrument=self.instrument, counter=self.counter, pump=self.pump
+    def reads(self, reading: MeterReading) -> bool:
+        """Whether the meter reading is of this counter (vent cycles have no meter)."""
+        return (
+            self.counter != Counter.VENT_CYCLES
+            and reading.instrument_id == self.instrument.pk
+            and reading.counter == self.counter
+            and reading.pump_id == (self.pump.pk if self.pump else None)
         )
 
-    def limit_filter(self) -> Q:
-        return Q(instrument=self.instrument, counter=self.counter, pump=self.pump, part=self.part)
+    def rated_by(self, limit: Limit) -> bool:
+        """Whether the limit is this counter's rating."""
+        return (limit.instrument_id, limit.counter, limit.pump_id, limit.part) == (
+            self.instrument.pk,
+            self.counter,
+            self.pump.pk if self.pump else None,
+            self.part,
+        )
 
 
-def counter_specs(instrument: Instrument) -> list[CounterSpec]:
+def counter_specs(
+    instrument: Instrument, records: UpkeepRecords | None = None
+) -> list[CounterSpec]:
     """Every counter the instrument has: its emitter, each pump, each wear part with a limit or a
-    recorded replacement."""
+    recorded replacement. `records` (loaded for this instrument among others) saves the reads."""
+    records = records or UpkeepRecords([instrument])
+    records.require(instrument)
+    pk = instrument.pk
     specs: list[CounterSpec] = []
     if instrument.emitter_type != "none":
         specs.append(CounterSpec(instrument, Counter.EMITTER_HOURS))
     specs.extend(
-        CounterSpec(instrument, Counter.PUMP_HOURS, pump=pump) for pump in instrument.pumps.all()
+        CounterSpec(instrument, Counter.PUMP_HOURS, pump=pump) for pump in records.pumps.get(pk, [])
     )
-    parts = set(
-        Limit.objects.filter(instrument=instrument, counter=Counter.VENT_CYCLES).values_list(
-            "part", flat=True
-        )
-    ) | set(
-        ServiceEvent.objects.filter(
-            instrument=instrument, kind=ServiceKind.PART_REPLACEMENT
-        ).values_list("part", flat=True)
-    )
+    parts = {
+        limit.part for limit in records.limits.get(pk, []) if limit.counter == Counter.VENT_CYCLES
+    } | {
+        event.part
+        for event in records.events.get(pk, [])
+        if event.kind == ServiceKind.PART_REPLACEMENT
+    }
     specs.extend(CounterSpec(instrument, Counter.VENT_CYCLES, part=p) for p in sorted(parts))
     return specs
-
-
-_CHAMBER_TIME = ExpressionWrapper(F("ended_at") - F("started_at"), output_field=DurationField())
 
 
 def use_between(
@@ -136,74 +170,17 @@ def use_between(
 ) -> float:
     """Use accumulated from `start` (None: since the beginning) to `end`, in hours or vents.
 
-    Sessions wholly inside are summed by the database; the few that cross a boundary are
-    prorated by their overlap.
+    For one look from a script or a test; counters read the sessions once through their
+    `UpkeepRecords` and measure every window from those.
     """
     if basis == CALENDAR:
-        if start is None or end <= start:
-            return 0.0
-        return (end - start) / HOUR
-    if start is not None and end <= start:
-        return 0.0
-    closed = InstrumentSession.objects.filter(
-        instrument_id=instrument_id, ended_at__isnull=False, started_at__lt=end
+        return calendar_use(start, end)
+    rows = (
+        InstrumentSession.objects.filter(instrument_id=instrument_id, ended_at__isnull=False)
+        .order_by("started_at", "pk")
+        .values_list(*SESSION_FIELDS)
     )
-    inside = Q(ended_at__lte=end)
-    if start is not None:
-        closed = closed.filter(ended_at__gt=start)
-        inside &= Q(started_at__gte=start)
-    if basis == BEAM_ON:
-        total: object = closed.filter(inside).aggregate(t=Sum("beam_on_hours"))["t"]
-    elif basis == VENTS:
-        total = closed.filter(inside).aggregate(t=Sum("vent_cycles"))["t"]
-    elif basis == CHAMBER:
-        total = closed.filter(inside).aggregate(t=Sum(_CHAMBER_TIME))["t"]
-    else:
-        raise ValueError(f"unknown counting basis {basis!r}")
-    edges = closed.exclude(inside).values_list(*SESSION_FIELDS)
-    return _as_float(total) + prorated(edges, basis, start, end)
-
-
-# What `prorated` reads of a session, in this order.
-SESSION_FIELDS = ("started_at", "ended_at", "beam_on_hours", "vent_cycles")
-SessionRow = tuple[dt.datetime, dt.datetime, Decimal | None, int]
-
-
-def prorated(
-    rows: Iterable[SessionRow], basis: str, start: dt.datetime | None, end: dt.datetime
-) -> float:
-    """Use from closed sessions between `start` and `end`, each counted for the share of it
-    that falls inside (beam-on hours and vents taken as spread evenly over the session)."""
-    amount = 0.0
-    for started, ended, beam, vents in rows:
-        lo = started if start is None else max(started, start)
-        overlap = min(ended, end) - lo
-        if overlap <= dt.timedelta(0):
-            continue
-        share = overlap / (ended - started)
-        if basis == BEAM_ON:
-            amount += float(beam or 0) * share
-        elif basis == VENTS:
-            amount += vents * share
-        else:
-            amount += overlap / HOUR
-    return amount
-
-
-def _as_float(total: object) -> float:
-    if total is None:
-        return 0.0
-    if isinstance(total, dt.timedelta):
-        return total / HOUR
-    if isinstance(total, Decimal | int | float):
-        return float(total)
-    raise TypeError(f"unexpected aggregate {total!r}")
-
-
-def first_session_start(instrument_id: int) -> dt.datetime | None:
-    return InstrumentSession.objects.filter(instrument_id=instrument_id).aggregate(
-        m=Min("started_at")
-    )["m"]
+    return Sessions(list(rows)).use(basis, start, end)
 
 
 @dataclass(frozen=True)
@@ -238,17 +215,30 @@ class ReadingCheck:
 
 
 class Timeline:
-    """One counter's resets and readings, loaded once, to evaluate its value at any time."""
+    """One counter's resets and readings, to evaluate its value at any time.
 
-    def __init__(self, spec: CounterSpec) -> None:
+    They come from `records`, which may hold the records of many instruments: a page of counters
+    reads each table once, not once per counter (without it, this counter's instrument is read).
+    """
+
+    def __init__(self, spec: CounterSpec, records: UpkeepRecords | None = None) -> None:
         self.spec = spec
-        self.resets = list(spec.resets().order_by("performed_at", "pk"))
-        self.readings = list(spec.readings().order_by("read_at", "pk"))
-        self.first_session = first_session_start(spec.instrument.pk)
+        self.records = records or UpkeepRecords([spec.instrument])
+        self.records.require(spec.instrument)
+        pk = spec.instrument.pk
+        self.resets = [e for e in self.records.events.get(pk, []) if spec.resets_with(e)]
+        self.readings = [r for r in self.records.readings.get(pk, []) if spec.reads(r)]
+        self.first_session = self.records.first_session.get(pk)
         if spec.pump is not None:
             self.origin: dt.datetime | None = start_of_day(spec.pump.installed_on)
         else:
             self.origin = self.first_session
+
+    def use(self, start: dt.datetime | None, end: dt.datetime) -> float:
+        """Use from `start` to `end` on this counter's basis (calendar time reads no sessions)."""
+        if self.spec.basis == CALENDAR:
+            return calendar_use(start, end)
+        return self.records.sessions(self.spec.instrument.pk).use(self.spec.basis, start, end)
 
     def last_reset(self, at: dt.datetime) -> ServiceEvent | None:
         done = [e for e in self.resets if e.performed_at <= at]
@@ -282,7 +272,7 @@ class Timeline:
         anchor = self.anchor(at, readings=readings)
         if anchor.at is None or at < anchor.at:
             return anchor.value
-        return anchor.value + use_between(self.spec.instrument.pk, self.spec.basis, anchor.at, at)
+        return anchor.value + self.use(anchor.at, at)
 
     def since(self, at: dt.datetime) -> dt.datetime | None:
         """Start of the current part's life: its last reset, else the origin."""
@@ -302,17 +292,15 @@ class Timeline:
             anchor = self.anchor(reading.read_at, readings_before=reading.read_at)
             predicted = anchor.value
             if anchor.at is not None and reading.read_at > anchor.at:
-                predicted += use_between(
-                    self.spec.instrument.pk, self.spec.basis, anchor.at, reading.read_at
-                )
+                predicted += self.use(anchor.at, reading.read_at)
             checks.append(ReadingCheck(reading, predicted))
         return checks
 
     def series(self, points: list[dt.datetime]) -> list[tuple[dt.datetime, float]]:
         """The counter's value at each of `points` (for charts and the audit export).
 
-        The same arithmetic as `value_at`, but the sessions are read once and prorated here:
-        one query for the whole series instead of two per point.
+        The same arithmetic as `value_at`, but as differences of one cumulative sum over the
+        sessions in range: a bisect per point instead of a pass over the sessions.
         """
         if not points:
             return []
@@ -323,16 +311,8 @@ class Timeline:
             starts = [a.at for _, a in anchors if a.at is not None]
             rows = []
             if starts:
-                rows = list(
-                    InstrumentSession.objects.filter(
-                        instrument_id=self.spec.instrument.pk,
-                        ended_at__isnull=False,
-                        ended_at__gt=min(starts),
-                        started_at__lt=max(points),
-                    )
-                    .order_by("started_at")
-                    .values_list(*SESSION_FIELDS)
-                )
+                sessions = self.records.sessions(self.spec.instrument.pk)
+                rows = sessions.between(min(starts), max(points))
         cumulative = Cumulative(rows, self.spec.basis)
         values = []
         for t, anchor in anchors:
@@ -344,34 +324,3 @@ class Timeline:
                 used = cumulative.at(t) - cumulative.at(anchor.at)
                 values.append((t, anchor.value + used))
         return values
-
-
-class Cumulative:
-    """Use from the start of `rows` up to any time x, F(x), so that use between a and b is
-    F(b) − F(a): prorating is additive over time. Sessions finished by x come from a prefix sum
-    (bisect on end time); only those still running at x are prorated one by one."""
-
-    def __init__(self, rows: list[SessionRow], basis: str) -> None:
-        self.basis = basis
-        self.rows = sorted(rows, key=lambda r: r[1])
-        self.ends = [r[1] for r in self.rows]
-        self.longest = max((r[1] - r[0] for r in self.rows), default=dt.timedelta(0))
-        self.prefix = [0.0]
-        for started, ended, beam, vents in self.rows:
-            if basis == BEAM_ON:
-                whole = float(beam or 0)
-            elif basis == VENTS:
-                whole = float(vents)
-            else:
-                whole = (ended - started) / HOUR
-            self.prefix.append(self.prefix[-1] + whole)
-
-    def at(self, x: dt.datetime) -> float:
-        done = bisect.bisect_right(self.ends, x)
-        total = self.prefix[done]
-        # A session running at x ends after x but within one session length of it.
-        k = done
-        while k < len(self.rows) and self.ends[k] < x + self.longest:
-            total += prorated([self.rows[k]], self.basis, None, x)
-            k += 1
-        return total

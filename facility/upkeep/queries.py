@@ -14,16 +14,29 @@ from django.db.models import QuerySet
 from facility.errors import NotAllowed
 from facility.instruments.models import Instrument, Pump
 from facility.people.queries import is_staff
-from facility.upkeep.counters import CounterSpec, ReadingCheck, Timeline, counter_specs
+from facility.upkeep.counters import (
+    CounterSpec,
+    ReadingCheck,
+    Timeline,
+    UpkeepRecords,
+    counter_specs,
+)
 from facility.upkeep.models import Alert, Limit, MeterReading, ServiceEvent
-from facility.upkeep.status import CounterStatus, counter_status, instrument_status
+from facility.upkeep.status import (
+    CounterStatus,
+    counter_status,
+    facility_status,
+    instrument_status,
+)
 
 __all__ = [
     "CounterSpec",
     "CounterStatus",
     "counter_specs",
     "counter_status",
+    "facility_status",
     "instrument_status",
+    "known_counter_status",
     "limits_of",
     "may_view",
     "meter_readings",
@@ -95,3 +108,12 @@ def spec_for(
 def reconciliation(spec: CounterSpec) -> list[ReadingCheck]:
     """Each meter reading of the counter beside the logbook's prediction: the drift per reading."""
     return Timeline(spec).checked_readings()
+
+
+def known_counter_status(spec: CounterSpec) -> CounterStatus | None:
+    """The counter's status if its instrument has that counter (else None), from one read of the
+    instrument's records for both the check and the figures."""
+    records = UpkeepRecords([spec.instrument])
+    if spec.key not in {s.key for s in counter_specs(spec.instrument, records)}:
+        return None
+    return counter_status(spec, records=records)

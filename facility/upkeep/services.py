@@ -31,7 +31,7 @@ from facility.upkeep.models import (
     ServiceEvent,
     ServiceKind,
 )
-from facility.upkeep.status import CounterStatus, instrument_status
+from facility.upkeep.status import CounterStatus, facility_status
 
 log = logging.getLogger(__name__)
 
@@ -305,20 +305,30 @@ def _body(status: CounterStatus) -> str:
     return "\n".join(lines)
 
 
-def _raise_alerts(status: CounterStatus, *, within_days: int, now: dt.datetime) -> list[Alert]:
+def _crossings(status: CounterStatus, *, within_days: int) -> dict[str, str]:
+    """The alert topic of each threshold the counter is past, by level."""
     levels = crossed_levels(status, within_days=within_days)
-    if not levels:
+    return {level: alert_topic(status, level) for level in levels}
+
+
+def _raise_alerts(
+    status: CounterStatus, *, within_days: int, now: dt.datetime, known: set[str]
+) -> list[Alert]:
+    """Alert the counter's crossings whose topic is not in `known` (alerted before)."""
+    topics = {
+        level: topic
+        for level, topic in _crossings(status, within_days=within_days).items()
+        if topic not in known
+    }
+    if not topics:
         return []
-    topics = {level: alert_topic(status, level) for level in levels}
     with transaction.atomic():
-        known = set(Alert.objects.filter(topic__in=topics.values()).values_list("topic", flat=True))
         created: list[Alert] = []
-        for level in levels:
-            if topics[level] in known:
-                continue
+        for level, topic in topics.items():
             forecast = status.forecast
+            # get_or_create, not create: a run alongside may have raised it since `known` was read.
             alert, made = Alert.objects.get_or_create(
-                topic=topics[level],
+                topic=topic,
                 defaults={
                     "counter_key": status.spec.key,
                     "instrument": status.spec.instrument,
@@ -356,9 +366,13 @@ def check_limits(*, now: dt.datetime | None = None, within_days: int | None = No
     now = now or timezone.now()
     within = forecast_alert_days() if within_days is None else within_days
     raised: list[Alert] = []
-    for instrument in Instrument.objects.filter(is_active=True).order_by("pk"):
-        for status in instrument_status(instrument, now=now):
-            raised.extend(_raise_alerts(status, within_days=within, now=now))
+    instruments = list(Instrument.objects.filter(is_active=True).order_by("pk"))
+    statuses = [s for _, of_one in facility_status(instruments, now=now) for s in of_one]
+    # One look for the crossings alerted on an earlier run, not one per counter.
+    topics = [t for s in statuses for t in _crossings(s, within_days=within).values()]
+    known = set(Alert.objects.filter(topic__in=topics).values_list("topic", flat=True))
+    for status in statuses:
+        raised.extend(_raise_alerts(status, within_days=within, now=now, known=known))
     if raised:
         log.info("upkeep: raised %d alert(s)", len(raised))
     return raised

@@ -15,8 +15,8 @@ from facility.upkeep.counters import (
     CounterSpec,
     ReadingCheck,
     Timeline,
+    UpkeepRecords,
     counter_specs,
-    use_between,
 )
 from facility.upkeep.defaults import (
     CALENDAR,
@@ -184,19 +184,22 @@ def recent_rates(
             rates[weeks] = None
             continue
         start = max(now - dt.timedelta(weeks=weeks), data_start)
-        used = use_between(spec.instrument.pk, spec.basis, start, now)
+        used = timeline.use(start, now)
         rates[weeks] = fc.rate_per_week(used, now - start)
     return rates
 
 
-def counter_status(spec: CounterSpec, *, now: dt.datetime | None = None) -> CounterStatus:
+def counter_status(
+    spec: CounterSpec, *, now: dt.datetime | None = None, records: UpkeepRecords | None = None
+) -> CounterStatus:
     """The full picture of one counter at `now` (default: the present)."""
-    return _status(spec, now or timezone.now(), Limit.objects.filter(spec.limit_filter()).first())
+    return _status(spec, now or timezone.now(), records or UpkeepRecords([spec.instrument]))
 
 
-def _status(spec: CounterSpec, now: dt.datetime, limit: Limit | None) -> CounterStatus:
-    info = limit_info(spec, limit)
-    timeline = Timeline(spec)
+def _status(spec: CounterSpec, now: dt.datetime, records: UpkeepRecords) -> CounterStatus:
+    limits = records.limits.get(spec.instrument.pk, [])
+    info = limit_info(spec, next((lim for lim in limits if spec.rated_by(lim)), None))
+    timeline = Timeline(spec, records)
     value = timeline.value_at(now)
     rates = recent_rates(timeline, now)
     forecast = (
@@ -220,20 +223,21 @@ def _status(spec: CounterSpec, now: dt.datetime, limit: Limit | None) -> Counter
 
 
 def instrument_status(
-    instrument: Instrument, *, now: dt.datetime | None = None
+    instrument: Instrument,
+    *,
+    now: dt.datetime | None = None,
+    records: UpkeepRecords | None = None,
 ) -> list[CounterStatus]:
     """Every counter of one instrument, in a fixed order (emitter, pumps, wear parts)."""
     now = now or timezone.now()
-    limits = list(Limit.objects.filter(instrument=instrument))
+    records = records or UpkeepRecords([instrument])
+    return [_status(s, now, records) for s in counter_specs(instrument, records)]
 
-    def find(spec: CounterSpec) -> Limit | None:
-        for lim in limits:
-            if (lim.counter, lim.pump_id, lim.part) == (
-                spec.counter,
-                spec.pump.pk if spec.pump else None,
-                spec.part,
-            ):
-                return lim
-        return None
 
-    return [_status(s, now, find(s)) for s in counter_specs(instrument)]
+def facility_status(
+    instruments: list[Instrument], *, now: dt.datetime | None = None
+) -> list[tuple[Instrument, list[CounterStatus]]]:
+    """Every counter of each of `instruments`, in their order, from one read of the records."""
+    now = now or timezone.now()
+    records = UpkeepRecords(instruments)
+    return [(i, instrument_status(i, now=now, records=records)) for i in instruments]

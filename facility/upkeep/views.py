@@ -113,12 +113,15 @@ def instrument_rows(instrument: Instrument) -> list[dict[str, Any]]:
 @require_GET
 def overview(request: HttpRequest) -> HttpResponse:
     _staff_only(request)
-    instruments = list(Instrument.objects.filter(is_active=True).prefetch_related("pumps"))
+    instruments = list(Instrument.objects.filter(is_active=True))
     return render(
         request,
         "upkeep/overview.html",
         {
-            "instruments": [(i, instrument_rows(i)) for i in instruments],
+            "instruments": [
+                (i, [counter_row(s) for s in statuses])
+                for i, statuses in queries.facility_status(instruments)
+            ],
             "alerts": list(queries.open_alerts()[:50]),
             "nav": "upkeep",
         },
@@ -276,9 +279,10 @@ def counter_chart(request: HttpRequest, code: str) -> HttpResponse:
     if request.GET.get("pump", "").isdigit():
         pump = get_object_or_404(Pump, pk=int(request.GET["pump"]), instrument=instrument)
     spec = queries.spec_for(instrument, counter, pump=pump, part=request.GET.get("part", ""))
-    if spec.key not in {s.key for s in queries.counter_specs(instrument)}:
+    status = queries.known_counter_status(spec)
+    if status is None:
         raise Http404("This instrument has no such counter.")
-    svg = charts.counter_chart(queries.counter_status(spec))
+    svg = charts.counter_chart(status)
     response = HttpResponse(svg, content_type="image/svg+xml")
     response["Cache-Control"] = "private, max-age=300"
     return response

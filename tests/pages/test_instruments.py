@@ -148,7 +148,7 @@ def test_instrument_page_query_count_is_pinned(as_user, facility, week, django_a
     with django_assert_num_queries(9):
         assert researcher.get(url).status_code == 200
     # Staff see every session: no group lookup; they also see the upkeep counters of its one
-    # counter, the Schottky emitter (7: limits, pumps, wear parts of limits and of service
-    # events, resets, meter readings, first session).
-    with django_assert_num_queries(15):
+    # counter, the Schottky emitter (5: pumps, limits, service events, meter readings, first
+    # session; calendar time, so no sessions are read).
+    with django_assert_num_queries(13):
         assert staff.get(url).status_code == 200
