@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import datetime as dt
+
 import pytest
 from django.core.files.storage import default_storage
 
@@ -124,8 +126,9 @@ def test_long_closed_session_refuses_the_operator_but_not_staff(facility, upload
     old = f.InstrumentSessionFactory(
         instrument=facility.sem, operator=facility.researcher_a, account=facility.account_a
     )
-    old.started_at = old.started_at.replace(year=2020)
-    old.ended_at = old.started_at.replace(hour=23)
+    # a fixed evening, not "now" moved back: replacing the hour broke between 02:00 and 03:00
+    old.started_at = dt.datetime(2020, 12, 1, 18, 0, tzinfo=dt.UTC)
+    old.ended_at = old.started_at + dt.timedelta(hours=5)
     old.save()
     data = images.tiff_bytes(images.clean())
     with pytest.raises(Closed, match="checked out"):
