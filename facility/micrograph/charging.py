@@ -54,7 +54,9 @@ of the charged images (0.53 on the development set, 0.39 on the test set): on sc
 few large regions (the weighting by the effective number of features cannot lift those) and
 under heavy blur they cannot be told from the specimen's own asymmetries at a low false-alarm
 rate, and neither a time-reversibility test on the increments along the lines nor per-feature
-z-scores of the level asymmetry did better on the development set; a uniform drift
+z-scores of the level asymmetry did better on the development set, nor an edge-anchored
+profile shape pooled over all crossings (the dark side of falling edges against the mirrored
+dark side of rising ones, each over its own step; see :mod:`.charging_tails`); a uniform drift
 (shear) is an affine change of the specimen and cannot be seen, only its slips; tears and slips
 of a few pixels under a probe of σ ≳ 4 px are mostly missed; clipping from charging cannot be
 told from clipping by a contrast setting that already saturates much of the image.

@@ -22,6 +22,21 @@ Few or very large features (a surface cut by a handful of straight boundaries) g
 independent samples, so the specimen's own left/right asymmetry scatters more there; the
 weighting lowers the sum on such images, which lets its ramp sit lower for the many-feature ones.
 Both numbers are unchanged by mirroring the image (the time direction plays no part in them).
+
+Tried and left out (development set, 768 clean and 79 tails images at strength ≥ 0.3): an
+edge-anchored profile shape pooled over all crossings of a line pair, not per feature — the dark
+side of each falling edge (its near part, e.g. 1–4 px, against its far part, 6–11 px, over that
+crossing's own step height) minus the same on the mirrored dark side of rising edges, with a
+block-jackknife spread over the lines and the same down the columns for reference. Anchored at
+strong derivative peaks (isolated by ±10–30 px; also with the point symmetry I(x₀ + d) + I(x₀ − d)
+− high − low of a blurred step as the residual) only 1–15 % of tails images passed the clean 98th
+percentile, hardly better than chance; anchored at the Otsu crossings 8–23 %, but as an extra
+finding at a ramp that keeps the clean flag rate near 2 % it found 2 more of the 60 tails images of
+the first set (0.53 → 0.57) for 3 more clean images flagged (8 → 11 of 432; second set 8 → 9 of
+336), so it is not used. On the edge scene only the boundaries of the charged regions carry a tail,
+a small share of all crossings, and a handful of long straight boundaries crossed by every line
+give few independent samples, so the pooled difference is diluted and scatters as much on clean
+images.
 """
 
 from __future__ import annotations

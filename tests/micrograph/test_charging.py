@@ -20,7 +20,10 @@ scenes are the hard group); detected at strength ≥ 0.3: clipped 0.97 / 0.94, l
 nonsense 1.00 / 1.00, all kinds 0.88 / 0.86 — short of the issue's 90 % overall, because tails
 and slips under heavy blur are missed (see ``facility/micrograph/charging.py``, "Known
 limits"). Weighting the tail sum by the effective number of features lifted tails on the
-development set from 0.47 to 0.53 and left this set's figures as they were.
+development set from 0.47 to 0.53 and left this set's figures as they were; an edge-anchored
+profile-shape statistic pooled over all crossings was tried and not used (it gained 2 of 60
+tails images on the development set for 3 more of its 432 clean images flagged; see
+``facility/micrograph/charging_tails.py``).
 """
 
 from __future__ import annotations
