@@ -30,7 +30,6 @@ from dataclasses import dataclass
 from django.utils import timezone
 
 from facility.instruments.models import Instrument, Pump
-from facility.logbook.models import InstrumentSession
 from facility.upkeep.defaults import CALENDAR, CHAMBER, VENTS, emitter_basis
 from facility.upkeep.models import (
     PUMP_KINDS,
@@ -40,13 +39,12 @@ from facility.upkeep.models import (
     ServiceEvent,
     ServiceKind,
 )
-from facility.upkeep.records import UpkeepRecords
+from facility.upkeep.records import StoredSessions, UpkeepRecords
 from facility.upkeep.usage import (
     HOUR,
     SESSION_FIELDS,
     Cumulative,
     SessionRow,
-    Sessions,
     calendar_use,
     prorated,
 )
@@ -170,17 +168,10 @@ def use_between(
 ) -> float:
     """Use accumulated from `start` (None: since the beginning) to `end`, in hours or vents.
 
-    For one look from a script or a test; counters read the sessions once through their
-    `UpkeepRecords` and measure every window from those.
+    For one look from a script or a test, summed by the database; counters read the sessions
+    once through their `UpkeepRecords` and measure every window from those.
     """
-    if basis == CALENDAR:
-        return calendar_use(start, end)
-    rows = (
-        InstrumentSession.objects.filter(instrument_id=instrument_id, ended_at__isnull=False)
-        .order_by("started_at", "pk")
-        .values_list(*SESSION_FIELDS)
-    )
-    return Sessions(list(rows)).use(basis, start, end)
+    return StoredSessions(instrument_id).use(basis, start, end)
 
 
 @dataclass(frozen=True)
