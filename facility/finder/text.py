@@ -1,16 +1,16 @@
 """Text relevance of specimens: PostgreSQL full-text search and trigrams, or a portable match.
 
-Relevance is a number in [0, 1] per specimen (:func:`relevance_of` is the definition). On
-PostgreSQL a specimen matches when its stored document (name, material, preparation, notes; see
+Relevance is a number in [0, 1] per specimen. On PostgreSQL a specimen matches when its stored document (name, material, preparation, notes; see
 migration 0002) matches any of the words, stemmed, or its material name is trigram-similar to
 the whole text (pg_trgm's ``%``, for misspelt names); relevance is the larger of ts_rank × 10
 and the trigram similarity of the material name. Elsewhere a specimen matches when one of its
 four texts contains a word, and relevance is the share of the words found.
 
-For speed the finder computes the two parts apart (:func:`combine`): the document's rank per
+The finder computes the two parts apart and joins them (:func:`combine`): the document's rank per
 specimen (:func:`document_rank`, the GIN index), and the name's similarity once per distinct
 material name (:func:`name_similarity`) — a facility has far fewer names than specimens, and
 the trigram index is unselective for short words that share trigrams with common names.
+``tests/finder/test_digest.py`` checks the parts joined against the definition in one query.
 """
 
 from __future__ import annotations
@@ -38,8 +38,6 @@ _CHUNK = 900  # ids per query on SQLite, below its limit of bound parameters
 # ts_rank of a short document rarely exceeds ~0.1: scaled to the trigram's 0–1 range.
 _RANK_SQL = f"ts_rank({DOCUMENT_COLUMN}, to_tsquery('english', %(q)s)) * 10.0"
 _DOCUMENT_MATCH_SQL = f"{DOCUMENT_COLUMN} @@ to_tsquery('english', %(q)s)"
-_RELEVANCE_SQL = f"GREATEST({_RANK_SQL}, similarity(material, %(text)s))"
-_MATCH_SQL = f"({_DOCUMENT_MATCH_SQL} OR material %% %(text)s)"
 
 
 def tokens(text: str) -> list[str]:
@@ -63,21 +61,6 @@ def _fetch(sql: str, params: dict) -> dict[int, float]:
     with connection.cursor() as cursor:
         cursor.execute(sql, params)
         return {pk: float(value) for pk, value in cursor.fetchall()}
-
-
-def relevance_of(specimen_ids: Sequence[int], text: str) -> dict[int, float]:
-    """Relevance of the given specimens that match `text` (the others are left out), in one
-    query: the definition the finder's faster composition (:func:`combine`) must agree with."""
-    if not tokens(text) or not len(specimen_ids):
-        return {}
-    ids = [int(i) for i in specimen_ids]
-    if uses_postgres():
-        sql = (
-            f"SELECT id, {_RELEVANCE_SQL} FROM logbook_specimen "
-            f"WHERE id = ANY(%(ids)s) AND {_MATCH_SQL}"
-        )
-        return _fetch(sql, {**_params(text), "ids": ids})
-    return document_rank(ids, text)
 
 
 # --- the two parts ----------------------------------------------------------------------------
@@ -157,9 +140,8 @@ def name_similarity(names: Sequence[str], text: str) -> tuple[np.ndarray, np.nda
 def combine(
     matched: np.ndarray, rank: np.ndarray, similarity: np.ndarray, passes: np.ndarray
 ) -> np.ndarray:
-    """Relevance from the parts, elementwise: as :data:`_RELEVANCE_SQL` over :data:`_MATCH_SQL`
-    — the larger of the two for a matching document, the name's similarity alone where only
-    the name passes the trigram threshold, else 0."""
+    """Relevance from the parts, elementwise: the larger of the two for a matching document, the
+    name's similarity alone where only the name passes the trigram threshold, else 0."""
     return np.where(matched, np.maximum(rank, similarity), np.where(passes, similarity, 0.0))
 
 

@@ -9,6 +9,7 @@ import random
 
 import numpy as np
 import pytest
+from django.db import connection
 from django.utils import timezone
 
 from facility.finder import digest, queries, text
@@ -65,11 +66,29 @@ def mixed_logbook(facility):
         )
 
 
+def _relevance(specimen_ids: list[int], words: str) -> dict[int, float]:
+    """The definition of text relevance (facility/finder/text.py) in one query, written apart
+    from the finder's two-part computation: on PostgreSQL the larger of ts_rank × 10 and the
+    material name's trigram similarity, for a specimen whose document matches a word or whose
+    name passes pg_trgm's threshold; elsewhere the share of the words found in its texts."""
+    if connection.vendor != "postgresql":
+        return text.document_rank(specimen_ids, words)
+    query = " | ".join(text.tokens(words))
+    sql = (
+        "SELECT id, GREATEST(ts_rank(finder_document, to_tsquery('english', %(q)s)) * 10.0, "
+        "similarity(material, %(t)s)) FROM logbook_specimen WHERE id = ANY(%(ids)s) AND "
+        "(finder_document @@ to_tsquery('english', %(q)s) OR material %% %(t)s)"
+    )
+    with connection.cursor() as cursor:
+        cursor.execute(sql, {"q": query, "t": words[:200], "ids": list(specimen_ids)})
+        return {pk: float(rel) for pk, rel in cursor.fetchall()}
+
+
 def _slow_ranking(user, c: Criteria, limit: int) -> list[tuple[int, float]]:
     """The score as criteria.WEIGHTS defines it, session by session, over the finder's pool."""
     mine = set(queries.group_ids_of(user))
     pool = list(queries._pool(user, mine).select_related("specimen", "coating", "instrument"))
-    relevance = text.relevance_of([s.specimen_id for s in pool], c.text) if c.text else {}
+    relevance = _relevance([s.specimen_id for s in pool], c.text) if c.text else {}
     scored = []
     for s in pool:
         sp = s.specimen
@@ -266,11 +285,11 @@ def test_a_weak_attribute_match_with_strong_text_is_not_pruned(monkeypatch, firs
     monkeypatch.setattr(text, "document_matches", lambda t, n: None)
     asked: list[list[int]] = []
 
-    def relevance_of(specimens, t):
+    def document_rank(specimens, t):
         asked.append(sorted(int(s) for s in specimens))
         return {103: 1.0} if 103 in asked[-1] else {}
 
-    monkeypatch.setattr(text, "document_rank", relevance_of)
+    monkeypatch.setattr(text, "document_rank", document_rank)
     table = _table(6)
     attributes = np.array([5.0, 5.0, 5.0, 3.0, 1.0, 0.5])
     rows = np.arange(6)
