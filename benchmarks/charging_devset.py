@@ -11,7 +11,10 @@ With ``--accuracy-recipe`` also the second development set: the recipe of
 two charging kinds per charged image) with seeds 777000 and 888000 instead of its own.
 Takes a few minutes on one core.
 
-Usage: ``python benchmarks/charging_devset.py [--clean N] [--per-kind N] [--accuracy-recipe]``
+Usage: ``python benchmarks/charging_devset.py [--clean N] [--per-kind N] [--clean-seed S]
+[--charged-seed S] [--accuracy-recipe [--recipe-seeds S ...]]``; the second development set is
+``--clean-seed 40000 --charged-seed 50000``, the further recipe sets ``--recipe-seeds 777000
+888000 999000 111000``.
 """
 
 from __future__ import annotations
@@ -70,17 +73,31 @@ def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--clean", type=int, default=432)
     parser.add_argument("--per-kind", type=int, default=60)
+    parser.add_argument("--clean-seed", type=int, default=20000, help="first seed of the clean set")
+    parser.add_argument(
+        "--charged-seed", type=int, default=30000, help="first seed of the charged set"
+    )
     parser.add_argument("--accuracy-recipe", action="store_true")
+    parser.add_argument(
+        "--recipe-seeds",
+        type=int,
+        nargs="+",
+        default=[777000, 888000],
+        help="seeds of the accuracy-recipe sets (with --accuracy-recipe)",
+    )
     args = parser.parse_args()
 
-    clean = [(g, _flagged(c, None)) for g, c in clean_cases(args.clean)]
+    clean = [(g, _flagged(c, None)) for g, c in clean_cases(args.clean, args.clean_seed)]
     n = sum(f for _, f in clean)
     print(f"clean images flagged: {n}/{len(clean)} = {n / len(clean):.3f}")
     for group in GROUPS:
         sub = [f for g, f in clean if g == group]
         print(f"  {group:17s} {sum(sub)}/{len(sub)}")
 
-    charged = [(k, _flagged(c, ChargingSpec((k,), s))) for k, s, c in charged_cases(args.per_kind)]
+    charged = [
+        (k, _flagged(c, ChargingSpec((k,), s)))
+        for k, s, c in charged_cases(args.per_kind, args.charged_seed)
+    ]
     print(f"charged images (strength ≥ {VISIBLE_STRENGTH}) detected, by kind:")
     for kind in KINDS:
         sub = [f for k, f in charged if k == kind]
@@ -88,7 +105,7 @@ def main() -> None:
     n = sum(f for _, f in charged)
     print(f"  all kinds   {n / len(charged):.3f} ({len(charged)} images)")
     if args.accuracy_recipe:
-        _accuracy_recipe()
+        _accuracy_recipe(tuple(args.recipe_seeds))
 
 
 def _accuracy_recipe(seeds: tuple[int, ...] = (777000, 888000)) -> None:

@@ -19,7 +19,7 @@ from .charging import DEFAULT_CHARGING_THRESHOLD, measure_charging
 from .physics import EDGE_20_80_PER_SIGMA
 from .sharpness import DEFAULT_PIXEL_LIMIT_PX, measure_sharpness
 
-ANALYSIS_VERSION = "2026.12-2"
+ANALYSIS_VERSION = "2026.12-3"
 
 FLAG_CODES = ("charging", "low_resolution", "astigmatism", "saturated", "pixel_limited")
 

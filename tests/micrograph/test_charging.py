@@ -10,20 +10,23 @@ up (some clipping), edge scenes with strong horizontal edges at a sharp probe, a
 a person would often not call the image charged (our judgement from looking at the generated
 images); the weak ones are made and reported but not counted.
 
-The detector's ramps were set on development sets made the same way with other seeds (432 clean
-from seed 20000 and 60 per kind from seed 30000, ``benchmarks/charging_devset.py``; and 336
-clean and 80 charged made like ``test_accuracy.py``'s set from seeds 777000 and 888000), never
-on this set. Figures at the time of writing, development set / this test set: clean flagged
-1.9 % / 0 % (second development set 2.4 %, 8 of 336, its charged 68 of 80; the horizontal-edge
-scenes are the hard group); detected at strength ≥ 0.3: clipped 0.97 / 0.94, line jumps
-1.00 / 0.94, streaks 0.98 / 1.00, tails 0.53 / 0.39, torn lines 0.83 / 0.94, shear 0.85 / 0.78,
-nonsense 1.00 / 1.00, all kinds 0.88 / 0.86 — short of the issue's 90 % overall, because tails
-and slips under heavy blur are missed (see ``facility/micrograph/charging.py``, "Known
-limits"). Weighting the tail sum by the effective number of features lifted tails on the
-development set from 0.47 to 0.53 and left this set's figures as they were; an edge-anchored
-profile-shape statistic pooled over all crossings was tried and not used (it gained 2 of 60
-tails images on the development set for 3 more of its 432 clean images flagged; see
-``facility/micrograph/charging_tails.py``).
+The detector's ramps were set on development sets made the same way with other seeds (twice
+432 clean and 60 per kind: seeds 20000/30000 and 40000/50000, ``benchmarks/charging_devset.py``;
+and 4 × 168 clean and 40 charged made like ``test_accuracy.py``'s set from seeds 777000, 888000,
+999000 and 111000), never on this set. Figures at the time of writing, first / second
+development set / this test set: clean flagged 3.5 % / 4.9 % / 0.9 % (accuracy-recipe sets
+2.8 %, 19 of 672, their charged 146 of 160; the horizontal-edge scenes are the hard group);
+detected at strength ≥ 0.3: clipped 0.97 / 0.93 / 0.94, line jumps 1.00 / 0.97 / 0.94, streaks
+1.00 / 0.98 / 1.00, tails 0.72 / 0.73 / 0.67, torn lines 0.85 / 0.87 / 0.94, shear 0.85 / 0.73 /
+0.78, nonsense 1.00 / 1.00 / 1.00, all kinds 0.91 / 0.89 / 0.90 (113 of 126, one image short of
+the issue's 90 % here) — tails on scenes of a few large regions and slips under heavy blur are
+missed (see ``facility/micrograph/charging.py``, "Known limits"). The steps between lines over
+part of a line (``line_steps``) lifted tails from 0.53 / 0.48 / 0.39 and all kinds from
+0.88 / 0.85 / 0.86, for clean flagged up from 1.9 % / 4.9 % / 0 % (accuracy-recipe sets 2.2 %,
+charged 143 of 160). Weighting the tail sum by the effective number of features lifted tails on
+the first development set from 0.47 to 0.53; an edge-anchored profile-shape statistic pooled
+over all crossings was tried and not used (it gained 2 of 60 tails images on the development
+set for 3 more of its 432 clean images flagged; see ``facility/micrograph/charging_tails.py``).
 """
 
 from __future__ import annotations
@@ -37,6 +40,7 @@ from skimage.filters import threshold_otsu
 
 from facility.micrograph.charging import (
     DEFAULT_CHARGING_THRESHOLD,
+    RAMPS,
     ChargingResult,
     _trimmed_mean,
     measure_charging,
@@ -169,15 +173,15 @@ def test_detection_on_charged_images(charged_results) -> None:
     for kind in ("clipped", "line_jumps", "streaks", "nonsense"):
         assert rates[kind] >= 0.9, kind
     # ... and not for the others: these floors guard what is reached now, below the figures
-    # of the development set (torn lines 0.83, shear 0.85, tails 0.53) and of this one (0.94,
-    # 0.78, 0.39; 18 images per kind)
-    for kind, floor in (("torn_lines", 0.75), ("shear", 0.65), ("tails", 0.3)):
+    # of the development sets (torn lines 0.85 / 0.87, shear 0.85 / 0.73, tails 0.72 / 0.73) and
+    # of this one (0.94, 0.78, 0.67; 18 images per kind)
+    for kind, floor in (("torn_lines", 0.75), ("shear", 0.65), ("tails", 0.55)):
         assert rates[kind] >= floor, kind
 
 
 @pytest.mark.xfail(
     strict=True,
-    reason="0.86 overall: tails (0.39) and slips under heavy blur (shear 0.78) are missed",
+    reason="0.897 overall (113 of 126): tails (0.67) and slips under heavy blur (shear 0.78)",
 )
 def test_overall_detection_meets_issue_target(charged_results) -> None:
     visible = [r for _, s, _, r in charged_results if s >= VISIBLE_STRENGTH]
@@ -193,6 +197,7 @@ def test_scores_and_evidence_are_plain_numbers(clean_results, charged_results) -
         assert name in keys
     for name in ("tail_sum", "tail_weighted", "torn_segments", "slip_gain", "shift_ratio"):
         assert name in keys
+    assert {"line_steps", "line_steps_columns", "partial_line_steps"} <= keys
 
 
 # --- the artefacts -------------------------------------------------------------------------
@@ -349,6 +354,33 @@ def test_torn_line_is_found_and_specimen_is_not() -> None:
     assert clean.score < DEFAULT_CHARGING_THRESHOLD
     assert r.score >= DEFAULT_CHARGING_THRESHOLD
     assert r.evidence["shift_run_ratio"] > 2.0 * max(clean.evidence["shift_run_ratio"], 0.5)
+
+
+def test_a_step_over_part_of_the_lines_is_a_line_step_and_a_blurred_edge_is_not() -> None:
+    # construction: a smooth texture (isotropic, so rows and columns alike) and, on lines
+    # 100–139, a level raised by 40 from about column 96 to 191, blurred by 2 px along the lines
+    # (a band that starts and ends from one line to the next, as the tail of a charged feature
+    # does); the same band blurred by 2 px in y as well is a specimen feature blurred by the
+    # probe, whose edges are shared by neighbouring lines
+    from scipy import ndimage
+
+    rng = np.random.default_rng(13)
+    base = np.clip(_textured(10, (256, 288)), 5.0, None)
+    band = np.zeros_like(base)
+    band[100:140, 96:192] = 40.0
+    band = ndimage.gaussian_filter1d(band, 2.0, axis=1)
+    stepped = rng.poisson(base + band).astype(np.float32)
+    blurred = rng.poisson(base + ndimage.gaussian_filter1d(band, 2.0, axis=0)).astype(np.float32)
+    plain = rng.poisson(base).astype(np.float32)
+    r, b, c = (measure_charging(x).evidence for x in (stepped, blurred, plain))
+    assert r["line_steps"] > 4.0 * RAMPS["line_steps"][1]
+    assert r["line_steps_columns"] < RAMPS["line_steps"][0]
+    assert b["line_steps"] < RAMPS["line_steps"][0]
+    assert c["line_steps"] < RAMPS["line_steps"][0]
+    # the same band turned by 90° runs down the columns: the specimen has no scan direction
+    turned = measure_charging(np.ascontiguousarray(stepped.T)).evidence
+    assert turned["line_steps"] < RAMPS["line_steps"][0]
+    assert turned["line_steps_columns"] > 4.0 * RAMPS["line_steps"][1]
 
 
 # --- behaviour on odd input -----------------------------------------------------------------
