@@ -14,19 +14,21 @@ The detector's ramps were set on development sets made the same way with other s
 432 clean and 60 per kind: seeds 20000/30000 and 40000/50000, ``benchmarks/charging_devset.py``;
 and 4 × 168 clean and 40 charged made like ``test_accuracy.py``'s set from seeds 777000, 888000,
 999000 and 111000), never on this set. Figures at the time of writing, first / second
-development set / this test set: clean flagged 3.5 % / 4.9 % / 0.9 % (accuracy-recipe sets
-2.8 %, 19 of 672, their charged 146 of 160; the horizontal-edge scenes are the hard group);
-detected at strength ≥ 0.3: clipped 0.97 / 0.93 / 0.94, line jumps 1.00 / 0.97 / 0.94, streaks
-1.00 / 0.98 / 1.00, tails 0.72 / 0.73 / 0.67, torn lines 0.85 / 0.87 / 0.94, shear 0.85 / 0.73 /
-0.78, nonsense 1.00 / 1.00 / 1.00, all kinds 0.91 / 0.89 / 0.90 (113 of 126, one image short of
-the issue's 90 % here) — tails on scenes of a few large regions and slips under heavy blur are
-missed (see ``facility/micrograph/charging.py``, "Known limits"). The steps between lines over
-part of a line (``line_steps``) lifted tails from 0.53 / 0.48 / 0.39 and all kinds from
-0.88 / 0.85 / 0.86, for clean flagged up from 1.9 % / 4.9 % / 0 % (accuracy-recipe sets 2.2 %,
-charged 143 of 160). Weighting the tail sum by the effective number of features lifted tails on
-the first development set from 0.47 to 0.53; an edge-anchored profile-shape statistic pooled
-over all crossings was tried and not used (it gained 2 of 60 tails images on the development
-set for 3 more of its 432 clean images flagged; see ``facility/micrograph/charging_tails.py``).
+development set / this test set: clean flagged 2.1 % / 4.2 % / 0.9 % (accuracy-recipe sets
+2.7 %, 18 of 672, their charged 146 of 160; the horizontal-edge scenes are the hard group);
+detected at strength ≥ 0.3: clipped 0.97 / 0.93 / 0.94, line jumps 0.98 / 0.97 / 0.94, streaks
+0.98 / 0.98 / 1.00, tails 0.72 / 0.73 / 0.67, torn lines 0.85 / 0.87 / 0.94, shear 0.83 / 0.73 /
+0.78, nonsense 1.00 / 1.00 / 1.00, all kinds 0.905 / 0.888 / 0.897 (113 of 126, one image short
+of the issue's 90 % here) — tails on scenes of a few large regions and slips under heavy blur
+are missed (see ``facility/micrograph/charging.py``, "Known limits"). The steps between lines
+over part of a line (``line_steps``) lifted tails from 0.53 / 0.48 / 0.39 and all kinds from
+0.88 / 0.85 / 0.86; with the steps of straight edges left out and jumps whose step drifts across
+the lines discounted, clean flagged went from 1.9 % / 4.9 % / 0 % to the figures above
+(accuracy-recipe sets from 2.2 %, charged from 143 of 160). Weighting the tail sum by the
+effective number of features lifted tails on the first development set from 0.47 to 0.53; an
+edge-anchored profile-shape statistic pooled over all crossings was tried and not used (it
+gained 2 of 60 tails images on the development set for 3 more of its 432 clean images flagged;
+see ``facility/micrograph/charging_tails.py``).
 """
 
 from __future__ import annotations
@@ -173,7 +175,7 @@ def test_detection_on_charged_images(charged_results) -> None:
     for kind in ("clipped", "line_jumps", "streaks", "nonsense"):
         assert rates[kind] >= 0.9, kind
     # ... and not for the others: these floors guard what is reached now, below the figures
-    # of the development sets (torn lines 0.85 / 0.87, shear 0.85 / 0.73, tails 0.72 / 0.73) and
+    # of the development sets (torn lines 0.85 / 0.87, shear 0.83 / 0.73, tails 0.72 / 0.73) and
     # of this one (0.94, 0.78, 0.67; 18 images per kind)
     for kind, floor in (("torn_lines", 0.75), ("shear", 0.65), ("tails", 0.55)):
         assert rates[kind] >= floor, kind
@@ -198,6 +200,7 @@ def test_scores_and_evidence_are_plain_numbers(clean_results, charged_results) -
     for name in ("tail_sum", "tail_weighted", "torn_segments", "slip_gain", "shift_ratio"):
         assert name in keys
     assert {"line_steps", "line_steps_columns", "partial_line_steps"} <= keys
+    assert {"line_jump_drift", "line_jump_drift_t"} <= keys
 
 
 # --- the artefacts -------------------------------------------------------------------------
@@ -381,6 +384,42 @@ def test_a_step_over_part_of_the_lines_is_a_line_step_and_a_blurred_edge_is_not(
     turned = measure_charging(np.ascontiguousarray(stepped.T)).evidence
     assert turned["line_steps"] < RAMPS["line_steps"][0]
     assert turned["line_steps_columns"] > 4.0 * RAMPS["line_steps"][1]
+
+
+def _level_with_edge(drop_lines: float | None) -> np.ndarray:
+    """A faint texture around 1000 with a step of 300 below a straight edge that falls
+    ``drop_lines`` across the frame, drawn as the share of each pixel below it (a probe
+    narrower than a pixel); ``None`` gives no edge."""
+    base = 1000.0 + (_textured(14, (256, 288)) - 100.0) / 3.0
+    if drop_lines is None:
+        return base
+    yy, xx = np.mgrid[0:256, 0:288].astype(np.float64)
+    edge = 120.3 + drop_lines * xx / 287.0
+    return base + 300.0 * np.clip(yy + 0.5 - edge, 0.0, 1.0)
+
+
+def test_an_edge_along_the_scan_is_not_a_line_jump_but_a_jump_is() -> None:
+    # construction: a specimen edge tilted by 0.8 line over the frame (0.16°) steps by a whole
+    # pixel within each strip, as a jump does, but between lines that move along the frame
+    # (0.71 line from the first 32-px strip to the last); a jump of the whole line's gain (×1.3
+    # from line 121 on) steps between the same two lines in every strip (common practice, no
+    # source). The strip centres are pulled a little towards the middle line (≈ 0.6).
+    for seed in (15, 16):
+        rng = np.random.default_rng(seed)
+        edge = measure_charging(rng.poisson(_level_with_edge(0.8)).astype(np.float32))
+        assert 0.4 < edge.evidence["line_jump_drift"] < 0.9
+        assert edge.evidence["line_jump_drift_t"] > RAMPS["line_jump_drift_t"][1]
+        assert edge.evidence["line_jump"] > RAMPS["line_jump"][1]  # abrupt, yet not a jump
+        assert "line_jumps" not in edge.findings
+        # it runs across the frame, so its steps are not partial-line steps either, nor are
+        # those of an edge falling 4 lines across the frame
+        assert "line_steps" not in edge.findings
+        steep = measure_charging(rng.poisson(_level_with_edge(4.0)).astype(np.float32))
+        assert "line_steps" not in steep.findings
+        gain = np.where(np.arange(256) >= 121, 1.3, 1.0)[:, None]
+        jump = measure_charging(rng.poisson(_level_with_edge(None) * gain).astype(np.float32))
+        assert abs(jump.evidence["line_jump_drift"]) < RAMPS["line_jump_drift"][0]
+        assert "line_jumps" in jump.findings
 
 
 # --- behaviour on odd input -----------------------------------------------------------------
