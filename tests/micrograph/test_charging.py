@@ -183,9 +183,12 @@ def test_detection_on_charged_images(charged_results) -> None:
 
 @pytest.mark.xfail(
     strict=True,
-    reason="0.897 overall (113 of 126): tails (0.67) and slips under heavy blur (shear 0.78)",
+    reason="kind-balanced set 0.897 (113 of 126): tails (0.67) and slips under heavy blur "
+    "(shear 0.78) are missed; the issue's own set (test_accuracy.py) meets 0.90",
 )
-def test_overall_detection_meets_issue_target(charged_results) -> None:
+def test_overall_detection_on_the_kind_balanced_set(charged_results) -> None:
+    # the issue's 90 % applied to this harder mix (every kind equally often, one kind per image:
+    # tails, tears and slips make 3 of 7 images here); stays an expected failure until reached
     visible = [r for _, s, _, r in charged_results if s >= VISIBLE_STRENGTH]
     assert sum(_flagged(r) for r in visible) / len(visible) >= 0.9
 
