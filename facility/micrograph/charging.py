@@ -97,6 +97,7 @@ DEFAULT_CHARGING_THRESHOLD = 0.5
 STRIP = 32  # strip width (px) for the line-mean statistics
 STEP_STRIP = 24  # strip width (px) for the steps between lines (part of a line: tails are short)
 LONG_STEP_SPAN = 0.75  # a step chained across this share of the strips is a straight edge
+MAX_DRIFT_T = 1e3  # the drift's t-value is reported up to this (it is exact without noise)
 
 # evidence key → (clean level, charged level): partial score = clip((v − lo)/(hi − lo), 0, 1).
 # Set on the development sets (see the module docstring) so that the flag is raised on no more
@@ -385,7 +386,9 @@ def _step_drift(diff: np.ndarray, k: int, sign: float) -> tuple[float, float]:
     spread = np.sum((x - x.mean()) ** 2)
     se = math.sqrt(float(np.sum(resid**2)) / (x.size - 2) / spread)
     drift = float(slope * (diff.shape[1] - 1))
-    return drift, float(abs(slope) / se) if se > 0 else 0.0
+    if se == 0.0:  # centres exactly on a line (a noise-free image): certain, whatever the slope
+        return drift, 0.0 if slope == 0.0 else MAX_DRIFT_T
+    return drift, min(float(abs(slope) / se), MAX_DRIFT_T)
 
 
 def _streak_energy(lines: np.ndarray) -> float:
