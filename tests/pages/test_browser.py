@@ -55,7 +55,7 @@ def browser_page(monkeypatch):
     # Playwright's sync API runs an event loop in this thread; the test's own ORM calls are
     # still plain synchronous code.
     monkeypatch.setenv("DJANGO_ALLOW_ASYNC_UNSAFE", "true")
-    with sync_playwright() as pw:
+    with _connections_closed_after(), sync_playwright() as pw:
         browser = pw.chromium.launch(executable_path=str(CHROMIUM), args=CHROMIUM_ARGS)
         # About a 10-inch tablet in landscape, as beside the microscope.
         context = browser.new_context(viewport={"width": 1180, "height": 820}, locale="en-GB")
@@ -66,6 +66,35 @@ def browser_page(monkeypatch):
         finally:
             context.close()
             browser.close()
+
+
+@contextmanager
+def _connections_closed_after() -> Iterator[None]:
+    """Close, at the end, the database connections this thread opens meanwhile.
+
+    With Playwright's sync API running, the test body's ORM calls resolve Django's per-context
+    connection handler to a wrapper of their own, which the test database teardown does not
+    close (on PostgreSQL the database could then not be dropped at the end of the run). The
+    live server's connections belong to its own thread and are closed there.
+    """
+    import threading
+
+    from django.db.backends.signals import connection_created
+
+    me = threading.get_ident()
+    opened = []
+
+    def remember(sender, connection, **kwargs) -> None:
+        if threading.get_ident() == me:
+            opened.append(connection)
+
+    connection_created.connect(remember, weak=False)
+    try:
+        yield
+    finally:
+        connection_created.disconnect(remember)
+        for conn in opened:
+            conn.close()
 
 
 class Steps:
