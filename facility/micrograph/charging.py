@@ -53,8 +53,8 @@ set on seeded development sets — twice 432 clean and 420 charged images made l
 of ``tests/micrograph/test_charging.py`` with other seeds (``benchmarks/charging_devset.py``,
 seeds 20000/30000 and 40000/50000), the first 432 clean cases drawn by an earlier revision of
 the generator, and 4 × 168 clean and 40 charged made like the set of
-``tests/micrograph/test_accuracy.py`` with other seeds — never on the test sets); the clipping ramps are multiplied, since clipping alone is also what a high contrast
-setting gives.
+``tests/micrograph/test_accuracy.py`` with other seeds — never on the test sets); the clipping
+ramps are multiplied, since clipping alone is also what a high contrast setting gives.
 The ``score`` combines the partial scores like independent detections, 1 − Π(1 − sᵢ), and the
 partial scores are kept in the evidence (``partial_*``); ``findings`` names those ≥
 :data:`DEFAULT_CHARGING_THRESHOLD`, the level for the ``charging`` flag.
@@ -101,8 +101,9 @@ MAX_DRIFT_T = 1e3  # the drift's t-value is reported up to this (it is exact wit
 
 # evidence key → (clean level, charged level): partial score = clip((v − lo)/(hi − lo), 0, 1).
 # Set on the development sets (see the module docstring) so that the flag is raised on no more
-# than about 4 % of their clean images (2.1 % and 4.2 % on the two per-kind sets); the whole-line and partial-line sub-pixel shifts only count when
-# they are strong, since below that the whole-pixel search already finds what they find.
+# than about 4 % of their clean images (2.1 % and 4.2 % on the two per-kind sets); the
+# whole-line and partial-line sub-pixel shifts only count when they are strong, since below
+# that the whole-pixel search already finds what they find.
 RAMPS: dict[str, tuple[float, float]] = {
     "top_spike_ratio": (3.0, 8.0),
     "clipped_fraction": (5e-4, 2e-3),
@@ -363,11 +364,12 @@ def _step_drift(diff: np.ndarray, k: int, sign: float) -> tuple[float, float]:
     """How far the step at line pair ``k`` moves across the frame, strip by strip.
 
     A change of the whole line happens between the same two lines in every strip; the edge of a
-    specimen lying almost along the scan (a stage is seldom aligned to better than a tenth of a
-    degree) steps between lines that move along the frame. For each strip, the centre of the
-    step over the line pairs k − 2 … k + 2; a straight line fitted through the centres gives the
-    drift from the first strip to the last (in lines) and the t-value of its slope. Fewer than
-    four strips carrying the step give (0, 0).
+    specimen lying almost along the scan (a specimen is seldom aligned to the scan to better
+    than a tenth of a degree; common practice, no source) steps between lines that move along
+    the frame. For each strip, the centre of the step over the line pairs k − 2 … k + 2; a
+    straight line fitted through the centres gives the drift from the first strip to the last
+    (in lines) and the t-value of its slope. Fewer than four strips carrying the step give
+    (0, 0).
     """
     if sign == 0.0:
         return 0.0, 0.0
