@@ -37,6 +37,12 @@ def _check_free(
     *,
     exclude_id: int | None = None,
 ) -> None:
+    # One writer per instrument at a time (inside the caller's transaction): on PostgreSQL,
+    # concurrent inserts checked by the exclusion constraint can deadlock, each waiting for the
+    # other's row while checking its own; queued on the instrument's row, the later writer sees
+    # the earlier booking here and gets a clash. A no-op on SQLite, whose write transactions
+    # are serialised already.
+    list(Instrument.objects.select_for_update().filter(pk=instrument.pk).values_list("pk"))
     if overlapping(instrument, starts_at, ends_at, exclude_id=exclude_id).exists():
         raise _clash(instrument, starts_at, ends_at)
 
