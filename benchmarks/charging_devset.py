@@ -33,6 +33,18 @@ from facility.micrograph.synth.charging import KINDS, VISIBLE_STRENGTH, Charging
 from tests.micrograph.test_charging import _conditions
 
 GROUPS = ("general", "bright particles", "horizontal edges", "heavy blur")
+RECIPE_SEEDS = (777000, 888000)  # the accuracy-recipe development sets used by default
+
+
+def _seed(text: str) -> int:
+    """A seed for numpy's generator: a whole number ≥ 0."""
+    try:
+        value = int(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"a seed is a whole number, not {text!r}") from None
+    if value < 0:
+        raise argparse.ArgumentTypeError(f"a seed is 0 or more, not {value}")
+    return value
 
 
 def clean_cases(n: int, base: int = 20000) -> list[tuple[str, dict]]:
@@ -73,16 +85,18 @@ def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--clean", type=int, default=432)
     parser.add_argument("--per-kind", type=int, default=60)
-    parser.add_argument("--clean-seed", type=int, default=20000, help="first seed of the clean set")
     parser.add_argument(
-        "--charged-seed", type=int, default=30000, help="first seed of the charged set"
+        "--clean-seed", type=_seed, default=20000, help="first seed of the clean set"
+    )
+    parser.add_argument(
+        "--charged-seed", type=_seed, default=30000, help="first seed of the charged set"
     )
     parser.add_argument("--accuracy-recipe", action="store_true")
     parser.add_argument(
         "--recipe-seeds",
-        type=int,
+        type=_seed,
         nargs="+",
-        default=[777000, 888000],
+        default=list(RECIPE_SEEDS),
         help="seeds of the accuracy-recipe sets (with --accuracy-recipe)",
     )
     args = parser.parse_args()
@@ -108,7 +122,7 @@ def main() -> None:
         _accuracy_recipe(tuple(args.recipe_seeds))
 
 
-def _accuracy_recipe(seeds: tuple[int, ...] = (777000, 888000)) -> None:
+def _accuracy_recipe(seeds: tuple[int, ...] = RECIPE_SEEDS) -> None:
     import tests.micrograph.test_accuracy as recipe
 
     clean, charged = [], []

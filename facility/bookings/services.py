@@ -30,6 +30,17 @@ def _clash(instrument: Instrument, starts_at: dt.datetime, ends_at: dt.datetime)
     )
 
 
+def _one_writer_per_instrument(instrument: Instrument) -> None:
+    """Hold the instrument's row until the caller's transaction ends.
+
+    On PostgreSQL, concurrent inserts checked by the exclusion constraint can deadlock, each
+    waiting for the other's row while checking its own; queued on the instrument's row, the
+    later writer sees the earlier booking in its overlap check and gets a clash. A no-op on
+    SQLite, whose write transactions are serialised already.
+    """
+    list(Instrument.objects.select_for_update().filter(pk=instrument.pk).values_list("pk"))
+
+
 def _check_free(
     instrument: Instrument,
     starts_at: dt.datetime,
@@ -37,12 +48,7 @@ def _check_free(
     *,
     exclude_id: int | None = None,
 ) -> None:
-    # One writer per instrument at a time (inside the caller's transaction): on PostgreSQL,
-    # concurrent inserts checked by the exclusion constraint can deadlock, each waiting for the
-    # other's row while checking its own; queued on the instrument's row, the later writer sees
-    # the earlier booking here and gets a clash. A no-op on SQLite, whose write transactions
-    # are serialised already.
-    list(Instrument.objects.select_for_update().filter(pk=instrument.pk).values_list("pk"))
+    _one_writer_per_instrument(instrument)
     if overlapping(instrument, starts_at, ends_at, exclude_id=exclude_id).exists():
         raise _clash(instrument, starts_at, ends_at)
 

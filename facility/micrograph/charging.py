@@ -406,9 +406,15 @@ def _streak_energy(lines: np.ndarray) -> float:
     height = np.abs(mid - 0.5 * (lines[:-4] + lines[4:]))
     bump = np.where(up * down > 0, np.minimum(np.abs(up), np.abs(down)), 0.0)
     bump = np.where(bump >= 0.75 * height, bump, 0.0)
-    scale = _robust_sd(lines[2:] + lines[:-2] - 2.0 * lines[1:-1]) / math.sqrt(6.0)
+    scale = _line_noise(lines)
     z = bump / scale
     return float(np.mean(np.maximum(z - 3.0, 0.0) ** 2))
+
+
+def _line_noise(lines: np.ndarray) -> float:
+    """Robust spread of one strip mean from line to line, from the second differences down the
+    frame (for white noise of spread s they have spread s·√6), the scale of streaks and steps."""
+    return _robust_sd(lines[2:] + lines[:-2] - 2.0 * lines[1:-1]) / math.sqrt(6.0)
 
 
 def _step_energy(lines: np.ndarray) -> float:
@@ -424,7 +430,7 @@ def _step_energy(lines: np.ndarray) -> float:
     diff = np.diff(lines, axis=0)
     step = np.abs(diff)
     abrupt = step[1:-1] - 2.0 * np.maximum(step[:-2], step[2:])
-    scale = _robust_sd(lines[2:] + lines[:-2] - 2.0 * lines[1:-1]) / math.sqrt(6.0)
+    scale = _line_noise(lines)
     energy = np.maximum(abrupt / scale - 3.0, 0.0) ** 2
     energy[_long_steps(diff)[1:-1]] = 0.0
     return float(np.mean(energy))
